@@ -102,9 +102,9 @@ class PauliExpansion:
         if not strings:
             raise ValueError("no Pauli strings given")
         n = len(strings[0])
-        arr = np.array([list(s) for s in strings])
-        if arr.shape != (len(strings), n):
+        if any(len(s) != n for s in strings):
             raise ValueError("Pauli strings must all have the same length")
+        arr = np.array([list(s) for s in strings]).reshape(len(strings), n)
         bad = ~np.isin(arr, list(PAULI_LETTERS))
         if bad.any():
             i, q = np.argwhere(bad)[0]
@@ -331,12 +331,19 @@ class PauliExpansion:
         zm = (self.z_bits.astype(np.uint64) * weights).sum(axis=1, dtype=np.uint64)
         return xm, zm
 
-    def to_sparse(self, dtype=None) -> sp.csr_matrix:
+    def to_sparse(self, dtype=None, chunk: int = 1 << 13) -> sp.csr_matrix:
         """The 2^n x 2^n matrix in CSR form, built without Kronecker products.
 
-        A string maps |c> to i^y (-1)^(z.c) |c ^ x>, so every row ``r`` has one
-        entry per distinct x mask, in column ``r ^ x``. Terms sharing an x mask
-        share that entry; its value is a signed sum over their z masks.
+        A string maps |c> to i^y (-1)^(z.c) |c ^ x>, so row ``r`` has one entry
+        per distinct x mask, in column ``r ^ x``, of value
+
+            sum_t c_t i^(y_t) (-1)^(z_t.x) (-1)^(z_t.r)    (t with x_t = x).
+
+        With S[j, r] = (-1)^(z_j.r) over the distinct z masks, the values of a
+        chunk of rows are one matrix product A @ S. Rows are done twice: once
+        to count the nonzero entries, once to fill arrays of exactly that
+        size, so peak memory stays close to the size of the result. Column
+        indices within a row are left unsorted (scipy sorts on demand).
         """
         op = self.combined()
         n = op.n_qubits
@@ -347,24 +354,48 @@ class PauliExpansion:
         phased = op.coeffs * (1j ** (_popcount_rows(op.x & op.z) % 4))
         if dtype is None:
             dtype = float if np.all(np.abs(phased.imag) <= 1e-14) else complex
-        phased = phased.real if dtype is float else phased
-        ux, inv = np.unique(xm, return_inverse=True)
-        rows = np.arange(dim, dtype=np.uint64)
-        index_dtype = np.int32 if dim * max(len(ux), 1) < 2**31 else np.int64
-        data = np.zeros((dim, max(len(ux), 1)), dtype=dtype)
-        cols = np.zeros((dim, max(len(ux), 1)), dtype=index_dtype)
-        for k, xk in enumerate(ux):
-            col = rows ^ xk
-            cols[:, k] = col
-            for t in np.flatnonzero(inv == k):
-                parity = np.bitwise_count(col & zm[t]) & 1
-                data[:, k] += phased[t] * (1.0 - 2.0 * parity)
-        indptr = np.arange(0, dim * data.shape[1] + 1, data.shape[1], dtype=index_dtype)
-        mat = sp.csr_matrix((data.ravel(), cols.ravel(), indptr), shape=(dim, dim))
-        del data, cols
+        phased = phased.real.copy() if dtype is float else phased.astype(dtype)
+        ux, xinv = np.unique(xm, return_inverse=True)
+        uz, zinv = np.unique(zm, return_inverse=True)
+        flip = 1.0 - 2.0 * (np.bitwise_count(xm & zm) & 1)
+        amat = np.zeros((len(ux), len(uz)), dtype=dtype)
+        np.add.at(amat, (xinv, zinv), phased * flip)
+        per_group = np.bincount(xinv, minlength=len(ux))
+        may_cancel = per_group > 1  # a lone string never gives a zero entry
+        n_groups = len(ux)
+
+        sign_of_parity = np.array([1.0, -1.0])
+
+        def signs(rows):
+            return sign_of_parity[np.bitwise_count(rows[None, :] & uz[:, None]) & np.uint8(1)]
+
+        counts = np.full(dim, n_groups, dtype=np.int64)
+        if may_cancel.any():
+            a_cancel = amat[may_cancel]
+            for start in range(0, dim, chunk):
+                rows = np.arange(start, min(start + chunk, dim), dtype=np.uint64)
+                counts[start:start + len(rows)] -= np.count_nonzero(a_cancel @ signs(rows) == 0, axis=0)
+        indptr = np.zeros(dim + 1, dtype=np.int64)
+        np.cumsum(counts, out=indptr[1:])
+        del counts
+        nnz = int(indptr[-1])
+        index_dtype = np.int64 if nnz >= 2**31 else np.int32
+        data = np.empty(nnz, dtype=dtype)
+        indices = np.empty(nnz, dtype=index_dtype)
+        for start in range(0, dim, chunk):
+            rows = np.arange(start, min(start + chunk, dim), dtype=np.uint64)
+            vals = (signs(rows).T @ amat.T).ravel()  # row-major: entries of one row together
+            cols = (rows[:, None] ^ ux[None, :]).ravel()
+            lo, hi = indptr[start], indptr[start + len(rows)]
+            if hi - lo == vals.size:
+                data[lo:hi] = vals
+                indices[lo:hi] = cols
+            else:
+                keep = np.flatnonzero(vals)
+                data[lo:hi] = vals[keep]
+                indices[lo:hi] = cols[keep]
+        mat = sp.csr_matrix((data, indices, indptr.astype(index_dtype)), shape=(dim, dim))
         mat.has_sorted_indices = False
-        mat.sort_indices()
-        mat.eliminate_zeros()
         return mat
 
     def to_dense(self) -> np.ndarray:
@@ -377,7 +408,7 @@ class PauliExpansion:
         k-1 and k is "not started" (0), "done" (1), or one open channel per
         distinct left part of the strings that cross the cut. The
         coefficient sits on the last factor of each string. Compressed
-        afterwards with the given relative cutoff.
+        afterwards, dropping singular values below ``cutoff`` times the largest.
         """
         import quimb.tensor as qtn
 
@@ -405,9 +436,11 @@ class PauliExpansion:
                     steps[q].append((left, 1, letter, c))
                 else:
                     prefix += (letter,)
-                    right = 2 + channels[q + 1].setdefault((first, prefix), len(channels[q + 1]))
-                    steps[q].append((left, right, letter, 1.0))
-                    left = right
+                    known = channels[q + 1]
+                    if (first, prefix) not in known:  # a shared left part is one channel
+                        known[(first, prefix)] = len(known)
+                        steps[q].append((left, 2 + known[(first, prefix)], letter, 1.0))
+                    left = 2 + known[(first, prefix)]
         # Y = -i Yr with the real matrix Yr = iY: a string with k factors Y is
         # c (-i)^k times a product of real matrices, so real-valued Hamiltonians
         # get a real MPO (half the memory, faster DMRG).
@@ -422,5 +455,5 @@ class PauliExpansion:
             w = w.real if is_real else w
             arrays.append(w[0] if q == 0 else (w[:, 1] if q == n - 1 else w))
         mpo = qtn.MatrixProductOperator(arrays, shape="lrud")
-        mpo.compress(cutoff=cutoff)
+        mpo.compress(cutoff=cutoff, cutoff_mode="rel")
         return mpo

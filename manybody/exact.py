@@ -138,9 +138,14 @@ def local_ham_1d(ham: PauliExpansion):
     return qtn.LocalHam1D(ham.n_qubits, H2=h2, H1=h1)
 
 
-def evolve_mps(ham: PauliExpansion, mps0, times, dt: float = 0.02, bond_dim: int = 128,
-               cutoff: float = 1e-10):
-    """MPS at each time under exp(-i H t) by fourth-order TEBD (quimb); returns (states, discarded)."""
+def evolve_mps(ham: PauliExpansion, mps0, times, dt: float = 0.05, bond_dim: int = 128,
+               cutoff: float = 1e-12):
+    """MPS at each time under exp(-i H t) by fourth-order TEBD (quimb).
+
+    Returns (states, Trotter error estimate). Small ``dt`` is not better:
+    truncation errors add up per step, so keep ``cutoff`` well below the
+    accuracy wanted.
+    """
     import quimb.tensor as qtn
 
     tebd = qtn.TEBD(mps0.copy(), local_ham_1d(ham), dt=dt, progbar=False,
