@@ -55,6 +55,20 @@ def _popcount_rows(words: np.ndarray) -> np.ndarray:
     return np.bitwise_count(words).sum(axis=-1, dtype=np.int64)
 
 
+def product_phase(x1, z1, x2, z2):
+    """Product of Hermitian Pauli strings: P(x1, z1) P(x2, z2) = i^k P(x1 ^ x2, z1 ^ z2).
+
+    k = y1 + y2 - y3 + 2 z1.x2 (mod 4), with y = popcount(x & z). Works on
+    any unsigned integer arrays whose last axis runs over words (packed
+    bits) or over qubits (one bit per entry); leading axes broadcast.
+    Returns (x3, z3, k).
+    """
+    x3, z3 = x1 ^ x2, z1 ^ z2
+    k = (_popcount_rows(x1 & z1) + _popcount_rows(x2 & z2) - _popcount_rows(x3 & z3)
+         + 2 * _popcount_rows(z1 & x2)) % 4
+    return x3, z3, k
+
+
 class PauliExpansion:
     """Sum_t c_t P_t over Pauli strings on ``n_qubits`` qubits.
 
@@ -240,19 +254,13 @@ class PauliExpansion:
     def multiply(self, other: "PauliExpansion", chunk: int = 4096) -> "PauliExpansion":
         """Operator product self * other with exact phases, simplified chunk by chunk."""
         other = self._check(other)
-        yb = _popcount_rows(other.x & other.z)
         total = PauliExpansion.zero(self.n_qubits)
         for start in range(0, max(len(self), 1), chunk):
             sl = slice(start, start + chunk)
             x1, z1, c1, a1 = self.x[sl, None], self.z[sl, None], self.coeffs[sl, None], self.anchor[sl, None]
             if x1.shape[0] == 0:
                 break
-            x3 = x1 ^ other.x[None]
-            z3 = z1 ^ other.z[None]
-            ya = _popcount_rows(x1 & z1)
-            y3 = _popcount_rows(x3 & z3)
-            cross = _popcount_rows(z1 & other.x[None])
-            k = (ya + yb[None] - y3 + 2 * cross) % 4
+            x3, z3, k = product_phase(x1, z1, other.x[None], other.z[None])
             coeff = c1 * other.coeffs[None] * (1j ** k)
             w = self.x.shape[1]
             part = PauliExpansion(self.n_qubits, x3.reshape(-1, w), z3.reshape(-1, w), coeff.ravel(),
