@@ -55,6 +55,48 @@ def build_parser() -> argparse.ArgumentParser:
                    help="largest DMRG bond dimension (default 128)")
     p.set_defaults(func=cmd_model)
 
+    p = sub.add_parser(
+        "prepare", formatter_class=_formatter, help="draw measurement settings (and export circuits)",
+        description=(
+            "Draw random measurement settings for a model and store them in a settings file.\n"
+            "local: a random X/Y/Z basis per qubit. shallow: DEPTH layers of random two-qubit\n"
+            "Cliffords on the lattice bonds (brickwork on a chain), then random bases. global: one\n"
+            "random Clifford on all qubits. --qasm writes one OpenQASM 3 file per setting,\n"
+            "setting_<id>.qasm, with the rotations to the measured bases and the measurements."),
+        epilog=("examples:\n"
+                "  manybody prepare demo_runs/tfim_chain.toml --ensemble local --settings 500 --seed 7 -o settings.nc\n"
+                "  manybody prepare demo_runs/tfim_chain.toml --ensemble shallow --depth 2 --settings 200 \\\n"
+                "      -o settings.nc --qasm circuits/"))
+    p.add_argument("spec", metavar="SPEC.toml", help="model spec (sets the qubits and the coupling graph)")
+    p.add_argument("--ensemble", choices=("local", "shallow", "global"), default="local",
+                   help="measurement ensemble (default local)")
+    p.add_argument("--depth", type=int, default=1, help="layers of two-qubit gates for --ensemble shallow (default 1)")
+    p.add_argument("--settings", type=int, required=True, metavar="K", help="number of settings to draw")
+    p.add_argument("--seed", type=int, default=None, help="random seed (default: fresh, recorded in the file)")
+    p.add_argument("-o", "--output", required=True, metavar="settings.nc", help="settings file to write")
+    p.add_argument("--qasm", metavar="DIR", help="also write one OpenQASM 3 file per setting into DIR")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_prepare)
+
+    p = sub.add_parser(
+        "ingest", formatter_class=_formatter, help="turn measurement records (CSV) into a shadow file",
+        description=(
+            "Read measurement records and write a shadow file. One row per shot, or per distinct\n"
+            "outcome with a count column; a header is required:\n"
+            "  local ensemble:     setting,basis,outcome[,count]   e.g. 17,XZZYX,01101,3\n"
+            "  shallow and global: setting,outcome[,count]         (needs --settings)\n"
+            "Character q of basis and outcome belongs to qubit q; outcome 0 is the +1 eigenvalue."),
+        epilog=("examples:\n"
+                "  manybody ingest run7.csv --settings settings.nc --model spec.toml --label time=0.5 -o t05.nc\n"
+                "  manybody ingest local_run.csv -o shadow.nc"))
+    p.add_argument("records", metavar="RECORDS.csv", help="measurement records")
+    p.add_argument("--settings", metavar="settings.nc", help="settings file from 'manybody prepare'")
+    p.add_argument("--model", metavar="SPEC.toml", help="model spec to store with the shadow")
+    p.add_argument("--label", action="append", metavar="KEY=VALUE",
+                   help="label of this shadow, e.g. time=0.5 (repeatable)")
+    p.add_argument("-o", "--output", required=True, metavar="shadow.nc", help="shadow file to write")
+    p.set_defaults(func=cmd_ingest)
+
     p = sub.add_parser("demo", formatter_class=_formatter, help="run the demo scenario end to end",
                        description="Run the built-in demo scenario end to end.")
     p.add_argument("-o", "--output", default="demo_runs/out", metavar="DIR", help="output folder")
@@ -103,6 +145,60 @@ def cmd_model(args) -> int:
 def _ramp(chi: int) -> list[int]:
     dims = [d for d in (16, 32, 64, 128, 256, 512) if d < chi]
     return dims + [chi]
+
+
+def progress_bar(args, **kwargs):
+    """A tqdm wrapper, silent with --quiet or when stderr is not a terminal."""
+    from tqdm import tqdm
+
+    disable = getattr(args, "quiet", False) or not sys.stderr.isatty()
+    return lambda it: tqdm(it, disable=disable, **kwargs)
+
+
+def cmd_prepare(args) -> int:
+    from .prepare import prepare_settings
+    from .qasm import write_qasm_files
+    from .shadow import write_shadow
+
+    if args.settings < 1:
+        raise InputError(f"--settings must be at least 1, got {args.settings}")
+    if args.ensemble == "shallow" and args.depth < 0:
+        raise InputError(f"--depth must be 0 or more, got {args.depth}")
+    model = load_model(args.spec)
+    depth = args.depth if args.ensemble == "shallow" else 0
+    try:
+        shadow = prepare_settings(model, args.ensemble, args.settings, depth, args.seed)
+    except ValueError as exc:
+        raise InputError(f"{args.spec}: {exc}") from None
+    write_shadow(shadow, args.output)
+    print(f"wrote {args.settings} settings ({shadow.ensemble.describe()}, seed {shadow.seed}) to {args.output}")
+    if args.qasm:
+        count = write_qasm_files(shadow.ensemble, shadow.settings, args.qasm,
+                                 progress_bar(args, desc="qasm", unit="file"))
+        print(f"wrote {count} OpenQASM 3 files to {args.qasm}")
+    return 0
+
+
+def cmd_ingest(args) -> int:
+    from .ingest import ingest, parse_labels
+    from .shadow import SETTINGS_KIND, SHADOW_KIND, read_shadow, write_shadow
+
+    labels = parse_labels(args.label)
+    settings = read_shadow(args.settings, kinds=(SETTINGS_KIND, SHADOW_KIND)) if args.settings else None
+    model = load_model(args.model) if args.model else None
+    if settings is not None and model is not None and model.n_qubits != settings.n_qubits:
+        raise InputError(f"{args.model}: the model has {model.n_qubits} qubits but {args.settings} "
+                         f"has {settings.n_qubits}")
+    shadow = ingest(args.records, settings, n_qubits=model.n_qubits if model else None,
+                    qubit_site=model.qubit_site if model else None,
+                    model_spec=model.spec.text if model else "", label=labels,
+                    settings_path=args.settings or "the settings file")
+    write_shadow(shadow, args.output)
+    label = ", ".join(f"{k} = {v}" for k, v in shadow.label.items())
+    print(f"wrote {shadow.n_snapshots} snapshots in {shadow.n_records} records over "
+          f"{len(shadow.settings)} settings ({shadow.ensemble.kind} ensemble, {shadow.n_qubits} qubits"
+          + (f"; {label}" if label else "") + f") to {args.output}")
+    return 0
 
 
 def cmd_demo(args) -> int:
