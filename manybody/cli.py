@@ -181,7 +181,7 @@ def cmd_prepare(args) -> int:
 
 def cmd_ingest(args) -> int:
     from .ingest import ingest, parse_labels
-    from .shadow import SETTINGS_KIND, SHADOW_KIND, read_shadow, write_shadow
+    from .shadow import SETTINGS_KIND, SHADOW_KIND, read_shadow
 
     labels = parse_labels(args.label)
     settings = read_shadow(args.settings, kinds=(SETTINGS_KIND, SHADOW_KIND)) if args.settings else None
@@ -189,13 +189,12 @@ def cmd_ingest(args) -> int:
     if settings is not None and model is not None and model.n_qubits != settings.n_qubits:
         raise InputError(f"{args.model}: the model has {model.n_qubits} qubits but {args.settings} "
                          f"has {settings.n_qubits}")
-    shadow = ingest(args.records, settings, n_qubits=model.n_qubits if model else None,
-                    qubit_site=model.qubit_site if model else None,
-                    model_spec=model.spec.text if model else "", label=labels,
-                    settings_path=args.settings or "the settings file")
-    write_shadow(shadow, args.output)
+    shadow, n_records, n_snapshots = ingest(
+        args.records, args.output, settings, n_qubits=model.n_qubits if model else None,
+        qubit_site=model.qubit_site if model else None, model_spec=model.spec.text if model else "",
+        label=labels, settings_path=args.settings or "the settings file")
     label = ", ".join(f"{k} = {v}" for k, v in shadow.label.items())
-    print(f"wrote {shadow.n_snapshots} snapshots in {shadow.n_records} records over "
+    print(f"wrote {n_snapshots} snapshots in {n_records} records over "
           f"{len(shadow.settings)} settings ({shadow.ensemble.kind} ensemble, {shadow.n_qubits} qubits"
           + (f"; {label}" if label else "") + f") to {args.output}")
     return 0

@@ -14,8 +14,11 @@ Layout (dimensions in brackets):
     tableau_x, tableau_z [setting, generator, qubit], tableau_sign [setting, generator] (global)
     coupling [edge, pair]                coupling graph of the device
     qubit_site [qubit]                   lattice site of each qubit
-    record_setting [record]              int64, position of the record's setting
-    outcome [record, qubit]              uint8 bits, 0 = +1 eigenvalue
+    record_setting [record]              int64, id of the record's setting (as in the CSV)
+    outcome [record, outcome_byte]       uint8, the outcome bits packed 8 to a byte: qubit q
+                                         is bit q % 8 (least significant first) of byte q // 8;
+                                         0 = +1 eigenvalue. Unpack with
+                                         numpy.unpackbits(outcome, axis=1, bitorder="little")[:, :n]
     count [record]                       uint32 shots with this outcome
 
 Attributes: ``file_kind`` ("manybody settings" or "manybody shadow"),
@@ -32,6 +35,7 @@ import datetime as _dt
 import json
 import os
 import tempfile
+from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 import xarray as xr
@@ -43,7 +47,6 @@ from .errors import InputError
 SCHEMA_VERSION = 1
 SETTINGS_KIND = "manybody settings"
 SHADOW_KIND = "manybody shadow"
-_COMPRESSION = {"zlib": True, "complevel": 4}
 
 
 @dataclass(frozen=True, eq=False)
@@ -51,7 +54,8 @@ class Shadow:
     """Settings plus records of one randomized-measurement experiment.
 
     ``record_setting``, ``outcomes`` and ``counts`` may be numpy arrays or lazy
-    xarray variables; :meth:`chunks` reads them piece by piece.
+    xarray variables; :meth:`chunks` reads them piece by piece. ``outcomes``
+    holds one bit per qubit, or the file's packed bytes when ``packed``.
     """
 
     ensemble: object
@@ -65,6 +69,7 @@ class Shadow:
     metadata: dict = field(default_factory=dict)
     seed: int | None = None
     source: str = ""
+    packed: bool = False
 
     @property
     def n_qubits(self) -> int:
@@ -78,45 +83,44 @@ class Shadow:
     def n_snapshots(self) -> int:
         return 0 if self.counts is None else int(np.asarray(self.counts).sum(dtype=np.int64))
 
-    def chunks(self, size: int = 1 << 16):
-        """Yield (record_setting, outcomes, counts) as numpy arrays, ``size`` records at a time."""
+    def records(self, size: int = 1 << 16):
+        """Yield (setting ids, outcomes, counts) as numpy arrays, ``size`` records at a time."""
         for start in range(0, self.n_records, size):
             sl = slice(start, start + size)
-            yield (np.asarray(self.record_setting[sl], dtype=np.int64),
-                   np.asarray(self.outcomes[sl], dtype=np.uint8),
+            outcomes = np.asarray(self.outcomes[sl], dtype=np.uint8)
+            if self.packed:
+                outcomes = unpack_outcomes(outcomes, self.n_qubits)
+            yield (np.asarray(self.record_setting[sl], dtype=np.int64), outcomes,
                    np.asarray(self.counts[sl], dtype=np.int64))
+
+    def chunks(self, size: int = 1 << 16):
+        """Yield (setting positions in ``settings``, outcomes, counts), ``size`` records at a time."""
+        ids = np.asarray(self.settings.ids)
+        order = np.argsort(ids, kind="stable")
+        identity = np.array_equal(ids, np.arange(len(ids)))
+        for setting_ids, outcomes, counts in self.records(size):
+            if identity:
+                yield setting_ids, outcomes, counts
+            else:
+                yield order[np.searchsorted(ids[order], setting_ids)], outcomes, counts
 
     def with_records(self, record_setting, outcomes, counts, **changes) -> "Shadow":
         return replace(self, record_setting=record_setting, outcomes=outcomes, counts=counts, **changes)
 
 
 # ----------------------------------------------------------------- writing
-def to_dataset(shadow: Shadow, created: str | None = None) -> xr.Dataset:
-    """The shadow (or its settings alone, when it has no records) as an xarray Dataset."""
-    ens, st = shadow.ensemble, shadow.settings
-    data = {"setting_id": (("setting",), np.asarray(st.ids, dtype=np.int64)),
-            "qubit_site": (("qubit",), np.asarray(shadow.qubit_site, dtype=np.int64))}
-    if st.basis is not None:
-        data["basis"] = (("setting", "qubit"), np.asarray(st.basis, dtype=np.uint8),
-                         {"flag_values": np.array([0, 1, 2], dtype=np.uint8), "flag_meanings": "X Y Z"})
-    if ens.kind == "shallow":
-        data["gate"] = (("setting", "slot"), np.asarray(st.gates, dtype=np.uint16),
-                        {"meaning": "canonical two-qubit Clifford index (manybody.clifford)"})
-        data["gate_qubits"] = (("slot", "pair"), ens.gate_qubits)
-        data["gate_layer"] = (("slot",), ens.gate_layer)
-        data["coupling"] = (("edge", "pair"), ens.coupling)
-    if ens.kind == "global":
-        data["tableau_x"] = (("setting", "generator", "qubit"), st.tableau_x)
-        data["tableau_z"] = (("setting", "generator", "qubit"), st.tableau_z)
-        data["tableau_sign"] = (("setting", "generator"), st.tableau_sign)
-    kind = SETTINGS_KIND
-    if shadow.counts is not None:
-        kind = SHADOW_KIND
-        data["record_setting"] = (("record",), np.asarray(shadow.record_setting, dtype=np.int64))
-        data["outcome"] = (("record", "qubit"), np.asarray(shadow.outcomes, dtype=np.uint8),
-                           {"meaning": "0 = +1 eigenvalue of the measured Pauli"})
-        data["count"] = (("record",), np.asarray(shadow.counts, dtype=np.uint32))
-    attrs = {
+def pack_outcomes(bits: np.ndarray) -> np.ndarray:
+    """(R, n) bits -> (R, ceil(n/8)) bytes, qubit q at bit q % 8 of byte q // 8."""
+    return np.packbits(np.asarray(bits, dtype=np.uint8), axis=1, bitorder="little")
+
+
+def unpack_outcomes(packed: np.ndarray, n_qubits: int) -> np.ndarray:
+    return np.unpackbits(packed, axis=1, bitorder="little", count=n_qubits)
+
+
+def _attrs(shadow: Shadow, kind: str, created: str | None) -> dict:
+    ens = shadow.ensemble
+    return {
         "file_kind": kind, "schema_version": SCHEMA_VERSION, "ensemble": ens.kind,
         "depth": int(ens.depth), "n_qubits": int(ens.n_qubits), "model_spec": shadow.model_spec,
         "label": json.dumps(shadow.label), "metadata": json.dumps(shadow.metadata),
@@ -124,35 +128,152 @@ def to_dataset(shadow: Shadow, created: str | None = None) -> xr.Dataset:
         "created": created or _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
         "tool_version": __version__,
     }
-    return xr.Dataset(data, attrs=attrs)
 
 
-def write_atomic(ds: xr.Dataset, path, chunk_records: int = 1 << 16) -> None:
-    """Write a dataset to netCDF-4 (h5netcdf), compressed, through a temporary file and a rename."""
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    os.makedirs(folder, exist_ok=True)
-    encoding = {}
-    for name, var in ds.variables.items():
-        if var.dtype.kind in "iuf" and var.ndim:
-            enc = dict(_COMPRESSION)
-            if "record" in var.dims and ds.sizes["record"] > 0:
-                enc["chunksizes"] = tuple(min(chunk_records, ds.sizes[d]) if d == "record" else ds.sizes[d]
-                                          for d in var.dims)
-            encoding[name] = enc
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".nc", dir=folder)
-    os.close(fd)
-    try:
-        ds.to_netcdf(tmp, engine="h5netcdf", encoding=encoding)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.remove(tmp)
-        raise
+def _settings_variables(shadow: Shadow) -> dict:
+    """name -> (dims, array, attrs) for everything but the records."""
+    ens, st = shadow.ensemble, shadow.settings
+    data = {"setting_id": (("setting",), np.asarray(st.ids, dtype=np.int64), {}),
+            "qubit_site": (("qubit",), np.asarray(shadow.qubit_site, dtype=np.int64), {})}
+    if st.basis is not None:
+        data["basis"] = (("setting", "qubit"), np.asarray(st.basis, dtype=np.uint8),
+                         {"flag_values": np.array([0, 1, 2], dtype=np.uint8), "flag_meanings": "X Y Z"})
+    if ens.kind == "shallow":
+        data["gate"] = (("setting", "slot"), np.asarray(st.gates, dtype=np.uint16),
+                        {"meaning": "canonical two-qubit Clifford index (manybody.clifford)"})
+        data["gate_qubits"] = (("slot", "pair"), ens.gate_qubits, {})
+        data["gate_layer"] = (("slot",), ens.gate_layer, {})
+        data["coupling"] = (("edge", "pair"), ens.coupling, {})
+    if ens.kind == "global":
+        data["tableau_x"] = (("setting", "generator", "qubit"), np.asarray(st.tableau_x, dtype=np.uint8), {})
+        data["tableau_z"] = (("setting", "generator", "qubit"), np.asarray(st.tableau_z, dtype=np.uint8), {})
+        data["tableau_sign"] = (("setting", "generator"), np.asarray(st.tableau_sign, dtype=np.int8), {})
+    return data
 
 
-def write_shadow(shadow: Shadow, path) -> None:
-    write_atomic(to_dataset(shadow), path)
+class ShadowWriter:
+    """Atomic, streamed writer of settings and shadow files.
+
+        with ShadowWriter(path) as out:
+            out.append(setting_ids, outcomes, counts)   # any number of times
+            out.finish(shadow)                          # settings and attributes
+
+    Records go to a temporary file next to ``path`` as they come (memory stays
+    flat); the file is renamed to ``path`` only when the block ends without
+    an error, so an existing file is never half overwritten.
+    """
+
+    def __init__(self, path, chunk_records: int = 1 << 16, created: str | None = None):
+        self.path = os.fspath(path)
+        self.chunk_records = chunk_records
+        self.created = created
+        self._file = None
+        self._tmp = None
+        self._records = 0
+        self._finished = False
+
+    def __enter__(self):
+        import h5netcdf
+
+        folder = os.path.dirname(os.path.abspath(self.path))
+        os.makedirs(folder, exist_ok=True)
+        fd, self._tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".nc", dir=folder)
+        os.close(fd)
+        self._file = h5netcdf.File(self._tmp, "w")
+        self._pool = ThreadPoolExecutor(max_workers=1)  # h5py releases the GIL while compressing
+        self._pending = []
+        return self
+
+    def _create_records(self, n_qubits: int):
+        f = self._file
+        f.dimensions["record"] = None
+        if "qubit" not in f.dimensions:
+            f.dimensions["qubit"] = n_qubits
+        f.dimensions["outcome_byte"] = -(-n_qubits // 8)
+        c = self.chunk_records
+        opts = {"compression": "gzip", "compression_opts": 1, "shuffle": True}
+        f.create_variable("record_setting", ("record",), dtype="i8", chunks=(c,), **opts).attrs["meaning"] = \
+            "id of the record's setting (setting_id)"
+        var = f.create_variable("outcome", ("record", "outcome_byte"), dtype="u1",
+                                chunks=(c, f.dimensions["outcome_byte"].size), **opts)
+        var.attrs["meaning"] = ("outcome bits packed 8 to a byte, qubit q at bit q % 8 (least significant "
+                                "first) of byte q // 8; bit 0 = +1 eigenvalue of the measured Pauli")
+        f.create_variable("count", ("record",), dtype="u4", chunks=(c,), **opts)
+
+    def append(self, setting_ids, outcomes, counts) -> None:
+        """Queue records for writing; a background thread compresses and writes them in order."""
+        outcomes = np.asarray(outcomes, dtype=np.uint8)
+        if self._records == 0 and "outcome" not in self._file.variables:
+            self._create_records(outcomes.shape[1])
+        start, stop = self._records, self._records + len(outcomes)
+        self._records = stop
+        while len(self._pending) >= 2:  # bounded: memory stays flat
+            self._pending.pop(0).result()
+        self._pending.append(self._pool.submit(
+            self._write, start, stop, np.asarray(setting_ids, dtype=np.int64), pack_outcomes(outcomes),
+            np.asarray(counts, dtype=np.uint32)))
+
+    def _write(self, start, stop, setting_ids, packed, counts):
+        self._file.resize_dimension("record", stop)
+        self._file.variables["record_setting"][start:stop] = setting_ids
+        self._file.variables["outcome"][start:stop] = packed
+        self._file.variables["count"][start:stop] = counts
+
+    def _drain(self):
+        while self._pending:
+            self._pending.pop(0).result()
+
+    def finish(self, shadow: Shadow, with_records: bool | None = None) -> None:
+        """Write the settings and attributes; records must all have been appended."""
+        self._drain()
+        f = self._file
+        if with_records is None:
+            with_records = self._records > 0 or shadow.counts is not None
+        if with_records and "outcome" not in f.variables:
+            self._create_records(shadow.n_qubits)
+        data = _settings_variables(shadow)
+        for name, (dims, values, _) in data.items():
+            for d, size in zip(dims, values.shape):
+                if d not in f.dimensions:
+                    f.dimensions[d] = size
+        for name, (dims, values, attrs) in data.items():
+            kw = {"compression": "gzip", "compression_opts": 4} if values.ndim and values.size > 1024 else {}
+            var = f.create_variable(name, dims, dtype=values.dtype, **kw)
+            var[...] = values
+            for key, value in attrs.items():
+                var.attrs[key] = value
+        kind = SHADOW_KIND if with_records else SETTINGS_KIND
+        for key, value in _attrs(shadow, kind, self.created).items():
+            f.attrs[key] = value
+        self._finished = True
+
+    def __exit__(self, exc_type, exc, tb):
+        ok = exc_type is None and self._finished
+        try:
+            self._drain()
+        except BaseException:
+            ok = False
+            if exc_type is None:
+                raise
+        finally:
+            self._pool.shutdown(wait=True)
+            self._file.close()
+            if ok:
+                os.replace(self._tmp, self.path)
+            elif os.path.exists(self._tmp):
+                os.remove(self._tmp)
+        if exc_type is None and not self._finished:
+            raise RuntimeError("ShadowWriter closed without finish(): nothing was written")
+        return False
+
+
+def write_shadow(shadow: Shadow, path, chunk_records: int = 1 << 16) -> None:
+    """Write a shadow (or, without records, a settings file) atomically."""
+    with ShadowWriter(path, chunk_records) as out:
+        if shadow.counts is not None:
+            for ids, outcomes, counts in shadow.records(chunk_records):
+                out.append(ids, outcomes, counts)
+        out.finish(shadow)
 
 
 # ----------------------------------------------------------------- reading
@@ -222,7 +343,8 @@ def read_shadow(path, kinds=(SHADOW_KIND, SETTINGS_KIND)) -> Shadow:
             source=str(ds.attrs.get("source", "")))
         if ds.attrs["file_kind"] == SHADOW_KIND:
             shadow = shadow.with_records(_need(ds, "record_setting", path).variable,
-                                         _need(ds, "outcome", path).variable, _need(ds, "count", path).variable)
+                                         _need(ds, "outcome", path).variable, _need(ds, "count", path).variable,
+                                         packed=True)
         return shadow
     except InputError:
         raise

@@ -5,6 +5,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -56,3 +57,73 @@ def test_too_large_for_exact_is_bad_input(tmp_path):
     spec.write_text('[lattice]\nkind = "square"\nsize = [6, 6]\n[model]\nkind = "heisenberg"\n')
     out = run("model", str(spec), "--exact")
     assert out.returncode == 2 and "too many for exact diagonalization" in out.stderr
+
+
+def test_prepare_ingest_round_trip(tmp_path):
+    import xarray as xr
+
+    from manybody.ensembles import basis_strings
+    from manybody.shadow import read_shadow
+
+    settings = tmp_path / "settings.nc"
+    out = run("prepare", "demo_runs/tfim_chain.toml", "--ensemble", "local", "--settings", "20", "--seed", "5",
+              "-o", str(settings), "--qasm", str(tmp_path / "qasm"))
+    assert out.returncode == 0, out.stderr
+    assert len(list((tmp_path / "qasm").glob("setting_*.qasm"))) == 20
+    bases = basis_strings(read_shadow(settings).settings.basis)
+    records = tmp_path / "records.csv"
+    records.write_text("setting,basis,outcome,count\n" + "".join(f"{k},{bases[k]},{'01' * 6},2\n" for k in range(20)))
+    shadow = tmp_path / "shadow.nc"
+    out = run("ingest", str(records), "--settings", str(settings), "--model", "demo_runs/tfim_chain.toml",
+              "--label", "time=0.25", "-o", str(shadow))
+    assert out.returncode == 0, out.stderr
+    assert "40 snapshots" in out.stdout
+    ds = xr.open_dataset(shadow, engine="h5netcdf")
+    assert ds.sizes["record"] == 20 and '"time": 0.25' in ds.attrs["label"]
+
+
+def test_same_seed_same_settings_file_content(tmp_path):
+    from manybody.shadow import read_shadow
+
+    for name in ("a.nc", "b.nc"):
+        assert run("prepare", "demo_runs/tfim_chain.toml", "--ensemble", "shallow", "--depth", "2",
+                   "--settings", "30", "--seed", "9", "-o", str(tmp_path / name)).returncode == 0
+    a, b = read_shadow(tmp_path / "a.nc"), read_shadow(tmp_path / "b.nc")
+    assert np.array_equal(a.settings.gates, b.settings.gates) and np.array_equal(a.settings.basis, b.settings.basis)
+
+
+@pytest.mark.parametrize("content,needle", [
+    ("setting,basis,outcome\n1,XXXXXXXXXXXX,000000000000\n2,XX,00\n", "line 3: outcome '00' has 2 characters"),
+    ("", "the file is empty"),
+    ("setting,outcome\n1,000000000000\n", "no 'basis' column"),
+])
+def test_ingest_bad_records_exit_2_and_write_nothing(tmp_path, content, needle):
+    records = tmp_path / "r.csv"
+    records.write_text(content)
+    target = tmp_path / "out.nc"
+    out = run("ingest", str(records), "-o", str(target))
+    assert out.returncode == 2 and needle in out.stderr and "Traceback" not in out.stderr
+    assert len(out.stderr.strip().splitlines()) == 1
+    assert not target.exists() and sorted(p.name for p in tmp_path.iterdir()) == ["r.csv"]
+
+
+def test_ingest_missing_setting_and_foreign_settings_file(tmp_path):
+    settings = tmp_path / "s.nc"
+    assert run("prepare", "demo_runs/tfim_chain.toml", "--ensemble", "shallow", "--settings", "3",
+               "--seed", "1", "-o", str(settings)).returncode == 0
+    records = tmp_path / "r.csv"
+    records.write_text("setting,outcome\n0,000000000000\n7,000000000000\n")
+    out = run("ingest", str(records), "--settings", str(settings), "-o", str(tmp_path / "o.nc"))
+    assert out.returncode == 2 and "line 3: setting 7 is not in" in out.stderr
+    records.write_text("setting,outcome\n0,000000000000\n")
+    out = run("ingest", str(records), "--settings", str(records), "-o", str(tmp_path / "o.nc"))
+    assert out.returncode == 2 and "not a readable netCDF-4 file" in out.stderr
+
+
+def test_prepare_bad_options(tmp_path):
+    out = run("prepare", "demo_runs/tfim_chain.toml", "--ensemble", "local", "--settings", "0", "-o",
+              str(tmp_path / "s.nc"))
+    assert out.returncode == 2 and "--settings must be at least 1" in out.stderr
+    out = run("prepare", "demo_runs/tfim_chain.toml", "--ensemble", "nowhere", "--settings", "3", "-o",
+              str(tmp_path / "s.nc"))
+    assert out.returncode == 2 and "invalid choice" in out.stderr

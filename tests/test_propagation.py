@@ -16,16 +16,17 @@ STRINGS = ["XIIIII", "IYZIII", "ZIIIXI", "IXYZXI", "YYYYYY", "IIIZIZ"]
 
 def dense_unitary(ens, settings, k):
     """U of setting k built from the gate unitaries (and stim for global Cliffords)."""
+    n = ens.n_qubits
     if ens.kind == "global":
         tab = stim_tableau_of(settings.tableau_x[k], settings.tableau_z[k], settings.tableau_sign[k])
         return tab.to_unitary_matrix(endian="big")
-    u = np.eye(2**N, dtype=complex)
+    u = np.eye(2**n, dtype=complex)
     if ens.kind == "shallow":
         table = clifford_table(2)
         for slot, (a, b) in enumerate(ens.gate_qubits.tolist()):
-            u = embed(table.unitaries[settings.gates[k, slot]], [a, b], N) @ u
-    for q in range(N):
-        u = embed(BASIS_ROTATIONS[settings.basis[k, q]], [q], N) @ u
+            u = embed(table.unitaries[settings.gates[k, slot]], [a, b], n) @ u
+    for q in range(n):
+        u = embed(BASIS_ROTATIONS[settings.basis[k, q]], [q], n) @ u
     return u
 
 
