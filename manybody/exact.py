@@ -112,6 +112,13 @@ def mps_reduced_density_matrix(mps, sites) -> np.ndarray:
     return np.asarray(rho)
 
 
+def mps_half_purity(mps, cut: int) -> float:
+    """tr rho_A^2 for A = qubits 0..cut-1 of an MPS, from the Schmidt values at that bond."""
+    p = np.asarray(mps.schmidt_values(cut), dtype=float)
+    p = p / p.sum()
+    return float(np.sum(p**2))
+
+
 def local_ham_1d(ham: PauliExpansion):
     """quimb LocalHam1D of a Pauli sum with only one- and nearest-neighbour two-qubit terms."""
     import quimb.tensor as qtn
