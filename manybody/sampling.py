@@ -173,15 +173,79 @@ def sample_mps_bases(tensors, basis_rows: np.ndarray, rng) -> np.ndarray:
     return out
 
 
-def apply_setting_mps(mps, ensemble, settings: Settings, k: int, max_bond: int, cutoff: float = 1e-10):
-    """The MPS after the gates of shallow setting k (quimb gate splitting), and its discarded weight."""
-    m = mps.copy()
+def _shift_center(tensors, frm: int, to: int) -> None:
+    """Move the orthogonality centre of (l, r, p) tensors from site ``frm`` to site ``to`` by QR steps."""
+    for q in range(frm, to):  # rightwards: A_q = Q R, R absorbed into A_(q+1)
+        l, r, p = tensors[q].shape
+        qm, rm = np.linalg.qr(tensors[q].transpose(0, 2, 1).reshape(l * p, r))
+        tensors[q] = qm.reshape(l, p, -1).transpose(0, 2, 1)
+        nxt = tensors[q + 1]
+        tensors[q + 1] = (rm @ nxt.reshape(nxt.shape[0], -1)).reshape(rm.shape[0], *nxt.shape[1:])
+    for q in range(frm, to, -1):  # leftwards: A_q = L Q, L absorbed into A_(q-1)
+        l, r, p = tensors[q].shape
+        qm, rm = np.linalg.qr(tensors[q].reshape(l, r * p).T)
+        tensors[q] = qm.T.reshape(-1, r, p)
+        prev = tensors[q - 1]
+        moved = prev.transpose(0, 2, 1).reshape(-1, prev.shape[1]) @ rm.T  # (l p, r')
+        tensors[q - 1] = moved.reshape(prev.shape[0], prev.shape[2], -1).transpose(0, 2, 1)
+
+
+def _two_site_gate(tensors, a: int, u: np.ndarray, max_bond: int, cutoff: float) -> float:
+    """Apply u to sites (a, a+1) with the centre at a; truncated SVD leaves the centre at a+1.
+
+    Returns the discarded weight (sum of dropped squared singular values).
+    """
+    left, right = tensors[a], tensors[a + 1]
+    chi_l, chi_m, _ = left.shape
+    chi_r = right.shape[1]
+    # theta[(p q), (l r)] = sum_m A_a[l, m, p] A_(a+1)[m, r, q], then the gate on (p q)
+    theta = left.transpose(0, 2, 1).reshape(chi_l * 2, chi_m) @ right.transpose(0, 2, 1).reshape(chi_m, 2 * chi_r)
+    theta = theta.reshape(chi_l, 4, chi_r).transpose(1, 0, 2).reshape(4, chi_l * chi_r)
+    theta = (u @ theta).reshape(2, 2, chi_l, chi_r).transpose(2, 0, 1, 3)
+    uu, ss, vh = np.linalg.svd(theta.reshape(chi_l * 2, 2 * chi_r), full_matrices=False)
+    total = float(np.sum(ss**2))
+    keep = min(max_bond, int(np.sum(ss > cutoff * ss[0])))
+    lost = float(np.sum(ss[keep:] ** 2)) / total
+    uu, ss, vh = uu[:, :keep], ss[:keep], vh[:keep]
+    tensors[a] = uu.reshape(chi_l, 2, keep).transpose(0, 2, 1)
+    tensors[a + 1] = (ss[:, None] * vh).reshape(keep, 2, chi_r).transpose(0, 2, 1)
+    return lost
+
+
+def apply_circuit_tensors(tensors, gates, max_bond: int, cutoff: float = 1e-12):
+    """Apply two-qubit gates [(u, a, b)] in order to right-canonical (l, r, p) tensors.
+
+    The orthogonality centre follows the gates (QR steps), each gate is a
+    truncated two-site SVD; gates on distant qubits travel with SWAPs.
+    Returns new right-canonical tensors of the normalised state and the
+    total discarded weight (a bound on 1 - fidelity, to first order).
+    """
+    swap = np.eye(4)[[0, 2, 1, 3]]
+    tensors = list(tensors)
+    center, lost = 0, 0.0
+    for u, a, b in gates:
+        if a > b:  # keep the first gate qubit on the left: conjugate by SWAP
+            a, b, u = b, a, swap @ u @ swap
+        _shift_center(tensors, center, a)
+        for q in range(a, b - 1):  # bring qubit a next to b
+            lost += _two_site_gate(tensors, q, swap, max_bond, cutoff)
+        lost += _two_site_gate(tensors, b - 1, u, max_bond, cutoff)
+        center = b
+        for q in range(b - 2, a - 1, -1):  # and back
+            _shift_center(tensors, center, q + 1)
+            lost += _two_site_gate(tensors, q, swap, max_bond, cutoff)
+            center = q + 1
+    _shift_center(tensors, center, 0)
+    tensors[0] = tensors[0] / np.linalg.norm(tensors[0])
+    return tensors, lost
+
+
+def apply_setting_mps(tensors, ensemble, settings: Settings, k: int, max_bond: int, cutoff: float = 1e-12):
+    """Right-canonical tensors after the gates of shallow setting k, and the discarded weight."""
     table = clifford_table(2)
-    for slot, (qa, qb) in enumerate(ensemble.gate_qubits.tolist()):
-        u = table.unitaries[settings.gates[k, slot]]
-        m.gate_(u, (qa, qb), contract="swap+split", max_bond=max_bond, cutoff=cutoff)
-    norm2 = float(np.real(m.norm()) ** 2)
-    return m, max(0.0, 1.0 - norm2)
+    gates = [(table.unitaries[settings.gates[k, slot]], qa, qb)
+             for slot, (qa, qb) in enumerate(ensemble.gate_qubits.tolist())]
+    return apply_circuit_tensors(tensors, gates, max_bond, cutoff)
 
 
 def sample_mps(mps, ensemble, settings: Settings, shots: int, rng, max_bond: int = 128,
@@ -200,10 +264,11 @@ def sample_mps(mps, ensemble, settings: Settings, shots: int, rng, max_bond: int
         for start in (progress(starts) if progress else starts):
             out[start:start + chunk] = sample_mps_bases(tensors, rows[start:start + chunk], rng)
         return out, discarded
+    tensors = mps_site_tensors(mps)
     indices = range(k)
     for j in (progress(indices) if progress else indices):
-        rotated, lost = apply_setting_mps(mps, ensemble, settings, j, max_bond)
+        rotated, lost = apply_setting_mps(tensors, ensemble, settings, j, max_bond)
         discarded = max(discarded, lost)
         rows = np.repeat(settings.basis[j:j + 1], shots, axis=0)
-        out[j * shots:(j + 1) * shots] = sample_mps_bases(mps_site_tensors(rotated), rows, rng)
+        out[j * shots:(j + 1) * shots] = sample_mps_bases(rotated, rows, rng)
     return out, discarded
