@@ -7,6 +7,7 @@ exit status 2; ``--debug`` shows the traceback instead.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 
 import numpy as np
@@ -129,6 +130,41 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", required=True, metavar="OUT", help="shadow file, or folder with --times")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_simulate)
+
+    p = sub.add_parser(
+        "estimate", formatter_class=_formatter, help="estimates with error bars from shadow files",
+        description=(
+            "Estimate energy, energy density, energy variance, magnetization, correlation maps,\n"
+            "purities, Renyi-2 entropies and the mutual-information map, each with a one-sigma\n"
+            "error bar (delete-one-block jackknife over blocks of whole settings by default).\n"
+            "Several shadows (a quench series) give one dataset with a time (or label) dimension.\n"
+            "LIST: subsystems separated by ';', each an inclusive range a-b or a list a,b,c of sites."),
+        epilog=("examples:\n"
+                "  manybody estimate gs.nc --subsystems '0-5;0;0-1' -o results.nc\n"
+                "  manybody estimate quench/*.nc --subsystems 0-5 --calibration cal.nc -o series.nc"))
+    p.add_argument("shadows", nargs="+", metavar="SHADOW.nc", help="shadow files")
+    p.add_argument("--model", metavar="SPEC.toml", help="model spec (default: the one stored in the shadow)")
+    p.add_argument("--subsystems", metavar="LIST", help="subsystems for purities and Renyi-2 entropies")
+    p.add_argument("--calibration", metavar="CAL.nc", help="shadow of |0...0> for robust (noise-aware) estimates")
+    p.add_argument("--errors", choices=("jackknife", "median-of-means", "analytic"), default="jackknife",
+                   help="error-bar method (default jackknife; the others apply to plain means)")
+    p.add_argument("--blocks", type=int, default=20, help="jackknife blocks of settings (default 20)")
+    p.add_argument("--no-mutual-information", action="store_true", help="skip the mutual-information map")
+    p.add_argument("-o", "--output", required=True, metavar="results.nc", help="results dataset to write")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_estimate)
+
+    p = sub.add_parser(
+        "reference", formatter_class=_formatter, help="exact values in the results schema",
+        description=("Exact values of the same quantities for a state of the model (dense, up to 20\n"
+                     "qubits), so that results - exact is one xarray expression."),
+        epilog="example:\n  manybody reference demo_runs/tfim_chain.toml --state ground --subsystems '0-5' -o exact.nc")
+    p.add_argument("spec", metavar="SPEC.toml", help="model spec")
+    p.add_argument("--state", required=True, help="ground, neel, zero, one, plus, minus, or letters 0 1 + -")
+    p.add_argument("--times", metavar="T1,T2,...", help="quench times")
+    p.add_argument("--subsystems", metavar="LIST", help="subsystems for purities and Renyi-2 entropies")
+    p.add_argument("-o", "--output", required=True, metavar="exact.nc", help="dataset to write")
+    p.set_defaults(func=cmd_reference)
 
     p = sub.add_parser("demo", formatter_class=_formatter, help="run the demo scenario end to end",
                        description="Run the built-in demo scenario end to end.")
@@ -270,6 +306,82 @@ def cmd_simulate(args) -> int:
                      progress=progress_bar(args, desc="settings", unit="chunk"))
     for path in paths:
         print(f"wrote {path}")
+    return 0
+
+
+def _model_of(args, shadow, path):
+    from hamiltonians.spec import parse_spec
+
+    if args.model:
+        return load_model(args.model)
+    if shadow.model_spec:
+        return parse_spec(shadow.model_spec, source=f"{path} (stored model spec)").build()
+    return None
+
+
+def cmd_estimate(args) -> int:
+    import warnings
+
+    from .calibration import Calibration, check_same_ensemble
+    from .estimate import estimate, parse_subsystems
+    from .results import combine_series, write_dataset
+    from .shadow import SHADOW_KIND, read_shadow
+
+    shadows = [read_shadow(p, kinds=(SHADOW_KIND,)) for p in args.shadows]
+    calibration = None
+    if args.calibration:
+        cal = read_shadow(args.calibration, kinds=(SHADOW_KIND,))
+        for path, shadow in zip(args.shadows, shadows):
+            check_same_ensemble(cal, shadow, args.calibration)
+        calibration = Calibration(cal)
+    results = []
+    for path, shadow in zip(args.shadows, shadows):
+        model = _model_of(args, shadow, path)
+        n_sites = model.n_sites if model is not None else int(np.max(shadow.qubit_site)) + 1
+        subsystems = parse_subsystems(args.subsystems, n_sites)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", RuntimeWarning)
+            try:
+                ds = estimate(shadow, model, subsystems, calibration, n_blocks=args.blocks, method=args.errors,
+                              mutual_information=not args.no_mutual_information,
+                              progress=progress_bar(args, desc=os.path.basename(path), unit="chunk"))
+            except InputError as exc:
+                raise InputError(f"{path}: {exc}") from None
+        for w in caught:
+            print(f"warning: {path}: {w.message}", file=sys.stderr)
+        results.append(ds)
+        _print_summary(path, ds)
+    write_dataset(combine_series(results, [s.label for s in shadows]), args.output)
+    print(f"wrote {args.output}")
+    return 0
+
+
+def _print_summary(path, ds):
+    parts = [f"{path}: {ds.attrs['n_snapshots']} snapshots"]
+    if "energy" in ds:
+        parts.append(f"energy {float(ds.energy):.5g} +- {float(ds.energy_err):.2g}")
+    if "renyi2" in ds:
+        for label, s2, err in zip(ds.subsystem.values, ds.renyi2.values, ds.renyi2_err.values):
+            parts.append(f"S2[{label}] {s2:.4g} +- {err:.2g}")
+    print("; ".join(parts))
+
+
+def cmd_reference(args) -> int:
+    from .estimate import parse_subsystems
+    from .reference import reference_dataset
+    from .results import combine_series, write_dataset
+    from .simulate import prepare_states
+
+    model = load_model(args.spec)
+    if model.n_qubits > 20:
+        raise InputError(f"{args.spec}: {model.n_qubits} qubits are too many for the dense reference (at most 20)")
+    subsystems = parse_subsystems(args.subsystems, model.n_sites)
+    times = _times(args.times) if args.times else None
+    states = prepare_states(model, args.state, times, "dense")
+    labels = [{} if t is None else {"time": t} for t, _, _ in states]
+    datasets = [reference_dataset(model, psi, subsystems, lab) for (t, psi, _), lab in zip(states, labels)]
+    write_dataset(combine_series(datasets, labels), args.output)
+    print(f"wrote {args.output}")
     return 0
 
 
