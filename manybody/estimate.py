@@ -291,6 +291,7 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
             sums.add_blocks(f"pc{i}", _pair_count_blocks(pair_words[i], qs, lam.inv_local(n), n_blocks, multi))
 
     return _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near_pairs, method,
+                    _reciprocal_points(model) if correlations and spin_like else None,
                     correlations, mutual_information and local and spin_like and ("mi_hist" in sums.data),
                     squared is not None, multi, lam, terms is not None,
                     calibration is not None)
@@ -402,7 +403,19 @@ def _pair_count_blocks(parts, qs, inv_local, n_blocks, multi):
     return pair_count_sum(w, inv_local[qs], exclude=setting, blocks=block, n_blocks=n_blocks)
 
 
-def _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near_pairs, method,
+def _reciprocal_points(model):
+    """q = sum_i (m_i / L_i) b_i on a periodic lattice (a_i . b_j = 2 pi delta_ij) and the phases e^(i q . r)."""
+    if model is None or model.lattice.kind == "graph" or any(b != "periodic" for b in model.lattice.boundary):
+        return None
+    lat = model.lattice
+    vecs = lat.vectors
+    recip = 2 * np.pi * np.linalg.pinv(vecs).T  # rows b_i with a_i . b_j = 2 pi delta_ij
+    grids = np.meshgrid(*[np.arange(s) / s for s in lat.size], indexing="ij")
+    q = np.stack([g.ravel() for g in grids], axis=1) @ recip
+    return q, np.exp(1j * q @ lat.positions.T)
+
+
+def _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near_pairs, method, reciprocal,
              correlations, mutual_information, has_squared, multi, lam, has_energy, calibrated):
     blocks = dict(sums.data)
     pair_count = {name: blocks.pop(name) for name in list(blocks) if name.startswith("pc")}
@@ -433,6 +446,12 @@ def _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near
                 # one shot per setting: the within-setting sum is the diagonal sum, i.e. "corr"
                 prod = (np.outer(total, total) - s.get("mag_within", s["corr"])) / pairs
                 out["connected_correlation"] = corr - prod.reshape(3, n, 3, n).transpose(0, 2, 1, 3)
+                if reciprocal is not None:
+                    # S(q) = (1/n) sum_ab e^(i q.(r_a - r_b)) <s^a_a s^a_b>, with <s^a_a s^a_a> = 1
+                    phase = reciprocal[1]
+                    same_axis = np.stack([np.nan_to_num(corr[a, a]) + np.eye(n) for a in range(3)])
+                    out["structure_factor"] = np.real(
+                        np.einsum("qa,xab,qb->xq", phase, same_axis, phase.conj())) / n
         if "energy" in s:
             out["energy"] = s["energy"] / count
             out["energy_density"] = s["density"] / count
@@ -478,7 +497,8 @@ def _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near
             full["purity"], err["purity"] = np.array(merged), np.array(merged_err)
     if method != "jackknife":
         _plain_mean_errors(method, blocks, full, err, n)
-    return _to_dataset(shadow, model, full, err, subsystems, n, n_sites, method, multi, calibrated, blocks)
+    return _to_dataset(shadow, model, full, err, subsystems, n, n_sites, method, multi, calibrated, blocks,
+                       reciprocal)
 
 
 def _pair_count_jackknife(pair_count, blocks, qubits_of):
@@ -536,7 +556,8 @@ def _plain_mean_errors(method, blocks, full, err, n):
             full[name], err[name] = analytic(blocks[key].sum(0), blocks["energy_sq_snap"].sum(0), count.sum())
 
 
-def _to_dataset(shadow, model, full, err, subsystems, n, n_sites, method, multi, calibrated, blocks):
+def _to_dataset(shadow, model, full, err, subsystems, n, n_sites, method, multi, calibrated, blocks,
+                reciprocal=None):
     coords = {"axis": list(AXES), "axis_a": list(AXES), "axis_b": list(AXES)}
     if model is not None:
         pos = model.lattice.positions
@@ -564,6 +585,11 @@ def _to_dataset(shadow, model, full, err, subsystems, n, n_sites, method, multi,
         coords["site_b"] = np.arange(n)
         put("correlation", ("axis_a", "axis_b", "site_a", "site_b"), full["correlation"])
         put("connected_correlation", ("axis_a", "axis_b", "site_a", "site_b"), full["connected_correlation"])
+    if "structure_factor" in full:
+        coords["q"] = np.arange(len(reciprocal[0]))
+        coords["qx"] = ("q", reciprocal[0][:, 0])
+        coords["qy"] = ("q", reciprocal[0][:, 1])
+        put("structure_factor", ("axis", "q"), full["structure_factor"])
     if "purity" in full and subsystems:
         coords["subsystem"] = [s.label for s in subsystems]
         coords["subsystem_size"] = ("subsystem", [len(s.sites) for s in subsystems])

@@ -54,6 +54,15 @@ def reference_dataset(model, psi: np.ndarray, subsystems=(), label: dict | None 
                 pair = exact.purity(exact.reduced_density_matrix(psi, [qa, qb]))
                 mi[qa, qb] = mi[qb, qa] = -np.log(single[qa]) - np.log(single[qb]) + np.log(pair)
         data["mutual_information"] = (("site_a", "site_b"), mi)
+        from .estimate import _reciprocal_points
+
+        reciprocal = _reciprocal_points(model)
+        if reciprocal is not None:
+            q, phase = reciprocal
+            same_axis = np.stack([np.nan_to_num(corr[a, a]) + np.eye(n) for a in range(3)])
+            coords.update(q=np.arange(len(q)), qx=("q", q[:, 0]), qy=("q", q[:, 1]))
+            data["structure_factor"] = (("axis", "q"), np.real(
+                np.einsum("qa,xab,qb->xq", phase, same_axis, phase.conj())) / n)
     if subsystems:
         qubit_site = np.asarray(model.qubit_site)
         purity = np.array([exact.purity(exact.reduced_density_matrix(

@@ -127,3 +127,47 @@ def test_prepare_bad_options(tmp_path):
     out = run("prepare", "demo_runs/tfim_chain.toml", "--ensemble", "nowhere", "--settings", "3", "-o",
               str(tmp_path / "s.nc"))
     assert out.returncode == 2 and "invalid choice" in out.stderr
+
+
+def test_estimate_and_reference_through_the_command_line(tmp_path):
+    import xarray as xr
+
+    shadow = tmp_path / "gs.nc"
+    assert run("simulate", "demo_runs/tfim_chain.toml", "--state", "ground", "--snapshots", "4000", "--seed", "3",
+               "-o", str(shadow)).returncode == 0
+    out = run("estimate", str(shadow), "--subsystems", "0-2;4", "-o", str(tmp_path / "r.nc"))
+    assert out.returncode == 0, out.stderr
+    assert "energy" in out.stdout and "S2[0-2]" in out.stdout
+    out = run("reference", "demo_runs/tfim_chain.toml", "--state", "ground", "--subsystems", "0-2;4",
+              "-o", str(tmp_path / "e.nc"))
+    assert out.returncode == 0, out.stderr
+    diff = xr.open_dataset(tmp_path / "r.nc") - xr.open_dataset(tmp_path / "e.nc")
+    assert set(diff.subsystem.values) == {"0-2", "4"}
+
+
+@pytest.mark.parametrize("extra,needle", [
+    (["--subsystems", "0-20"], "site 12 is outside the lattice (sites 0 to 11)"),
+    (["--subsystems", "1,1"], "a site is repeated"),
+    (["--subsystems", "a-b"], "expected an inclusive range"),
+    (["--model", "SMALL"], "the model has 4 qubits but the shadow has 12"),
+])
+def test_estimate_bad_input(tmp_path, extra, needle):
+    shadow = tmp_path / "gs.nc"
+    assert run("simulate", "demo_runs/tfim_chain.toml", "--state", "zero", "--snapshots", "200", "--seed", "1",
+               "-o", str(shadow)).returncode == 0
+    small = tmp_path / "small.toml"
+    small.write_text('[lattice]\nkind = "chain"\nsize = [4]\n[model]\nkind = "tfim"\n')
+    extra = [str(small) if e == "SMALL" else e for e in extra]
+    out = run("estimate", str(shadow), *extra, "-o", str(tmp_path / "r.nc"))
+    assert out.returncode == 2 and needle in out.stderr and "Traceback" not in out.stderr
+    assert not (tmp_path / "r.nc").exists()
+
+
+def test_calibration_from_another_ensemble(tmp_path):
+    shadow, cal = tmp_path / "s.nc", tmp_path / "cal.nc"
+    assert run("simulate", "demo_runs/tfim_chain.toml", "--state", "zero", "--snapshots", "200", "--seed", "1",
+               "-o", str(shadow)).returncode == 0
+    assert run("simulate", "demo_runs/tfim_chain.toml", "--state", "zero", "--snapshots", "200", "--seed", "2",
+               "--ensemble", "shallow", "--depth", "1", "-o", str(cal)).returncode == 0
+    out = run("estimate", str(shadow), "--calibration", str(cal), "-o", str(tmp_path / "r.nc"))
+    assert out.returncode == 2 and "was taken with another ensemble" in out.stderr

@@ -221,3 +221,60 @@ def test_error_bars_calibrated():
     # window at least 2.8 sigma wide on either side of that.
     for name, fraction in coverage(1000, 5000).items():
         assert 0.92 <= fraction <= 0.98, (name, fraction)
+
+
+def test_structure_factor_of_periodic_chain():
+    # Static structure factor S(q) = (1/n) sum_ab e^(iq(r_a - r_b)) <s_a s_b> on q = 2 pi m / L.
+    # Facts of the trade: sum_q S(q) = n (each diagonal term is 1), and for the ferromagnetic
+    # TFIM ground state the ZZ structure factor peaks at q = 0. Estimate within 4 sigma.
+    spec = '[lattice]\nkind = "chain"\nsize = [6]\nboundary = "periodic"\n[model]\nkind = "tfim"\nh = 0.5\n'
+    model = parse_spec(spec).build()
+    _, psi = exact.ground_state(model.hamiltonian)
+    ref = reference_dataset(model, psi)
+    sz = ref.structure_factor.sel(axis="Z")
+    assert float(sz.sum()) == pytest.approx(6.0)
+    assert int(sz.argmax()) == 0 and float(ref.qx[0]) == 0.0
+    result = estimate(make_shadow(psi, LocalEnsemble(6), 6000, seed=4), model, [])
+    assert within(result.structure_factor, result.structure_factor_err, ref.structure_factor)[0]
+
+
+def depth_errors(depths, n=8, snapshots=20000):
+    """Standard errors of the nearest-neighbour ZZ and of a contiguous weight-6 Z string on |0...0>.
+
+    Weight 6 rather than 10: the sample spread of a weight-10 estimate needs N >> 3^10 snapshots
+    at depth 0 to be seen at all; weight 6 shows the same ordering at N = 2e4.
+    """
+    psi = exact.product_state("0" * n)
+    nn = np.zeros(n, np.uint8)
+    nn[[3, 4]] = 2
+    w10 = np.zeros(n, np.uint8)
+    w10[2:8] = 2  # aligned with the first brickwork layer, like the weight-10 case above
+    out = {}
+    for d in depths:
+        ens = ShallowEnsemble(n, d, chain_edges(n))
+        sh = make_shadow(psi, ens, snapshots, seed=30 + d)
+        errs = []
+        for codes in (nn, w10):
+            v = snapshot_values(codes, ens, sh.settings, sh.record_setting, sh.outcomes) / ens.eigenvalue(codes != 0)
+            errs.append(v.std(ddof=1) / np.sqrt(len(v)))
+        out[d] = errs
+    return out
+
+
+def test_depth_trade_off_predicted_by_eigenvalues():
+    # Per-snapshot variance 1/lambda - <P>^2 (DESIGN.md section 6): deeper circuits lower lambda of a
+    # nearest-neighbour pair but raise it for a contiguous weight-10 string (fast sibling of the test below).
+    chain = chain_edges(12)
+    nn = [ShallowEnsemble(12, d, chain).eigenvalue([5, 6]) for d in (0, 1, 2, 3)]
+    w10 = [ShallowEnsemble(12, d, chain).eigenvalue(list(range(1, 11))) for d in (0, 1, 2)]
+    assert nn[0] > nn[2] > nn[3]
+    assert w10[1] > w10[0] and w10[2] > w10[0]
+
+
+@pytest.mark.slow
+def test_depth_trade_off_observed():
+    # Same budget at depths 0..2: the observed error of the nearest-neighbour correlation grows with
+    # depth, that of a long string (weight 6 of 8) is smaller at depths 1 and 2 than at depth 0.
+    errs = depth_errors((0, 1, 2))
+    assert errs[0][0] < errs[2][0]
+    assert errs[1][1] < errs[0][1] and errs[2][1] < errs[0][1]
