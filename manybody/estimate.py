@@ -123,6 +123,26 @@ class _Sums:
         else:
             self.data[name] = np.array(part, dtype=float)
 
+    def add_gram(self, name, runs, values):
+        """Per block, values[run]^T values[run] over the rows of that block (runs: (block, slice) pairs)."""
+        dim = values.shape[1]
+        if name not in self.data:
+            self.data[name] = np.zeros((self.n_blocks, dim, dim))
+        acc = self.data[name]
+        for b, rows in runs:
+            part = values[rows]
+            acc[b] += part.T @ part  # float32 chunks: exact for integer-valued entries below 2^24
+
+
+def _block_runs(blocks):
+    """(block, rows) pairs: contiguous slices when records come in setting order, index arrays otherwise."""
+    cuts = np.flatnonzero(np.diff(blocks)) + 1
+    starts = np.concatenate([[0], cuts])
+    stops = np.concatenate([cuts, [len(blocks)]])
+    if len(starts) <= 2 * len(np.unique(blocks)):
+        return [(int(blocks[a]), slice(a, b)) for a, b in zip(starts, stops)]
+    return [(int(b), np.flatnonzero(blocks == b)) for b in np.unique(blocks)]
+
 
 def _within(per_setting: np.ndarray, setting_block: np.ndarray, n_blocks: int, outer: bool = False):
     """sum over settings of each block of S_s S_s (elementwise) or S_s S_s^T (outer)."""
@@ -158,7 +178,7 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
         raise InputError("the shadow needs snapshots from at least two settings")
     n_blocks = int(min(n_blocks, len(active)))
     setting_block = np.full(k, -1)
-    setting_block[active] = np.arange(len(active)) % n_blocks
+    setting_block[active] = np.arange(len(active)) * n_blocks // len(active)  # contiguous runs of settings
     multi = bool(per_setting.max() > 1)
     sums = _Sums(n_blocks)
     sums.add_blocks("n", np.bincount(setting_block[active], weights=per_setting[active], minlength=n_blocks))
@@ -203,8 +223,10 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
         sub = st.take(used)  # circuits are propagated for the settings of this chunk only
 
         # one-site estimator columns f (N, 3, n)
+        # float32 columns are exact for +-3 and their sums below 2^24 (uncalibrated local ensemble)
+        exact32 = local and calibration is None and len(pos) * 9 < 2**24
         if local:
-            f = local_columns(basis, bits, lam.inv_local(n))
+            f = local_columns(basis, bits, lam.inv_local(n), np.float32 if exact32 else np.float64)
         else:
             f = np.empty((len(pos), 3, n))
             for a in range(3):
@@ -215,14 +237,9 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
         sums.add("mag", onehot, f)
         if multi and correlations:
             per_setting_add("mag", pos, f.reshape(len(pos), -1))
+        runs = _block_runs(blocks)
         if correlations:
-            flat = f.reshape(len(pos), -1)
-            for b in range(n_blocks):
-                sel = blocks == b
-                if sel.any():
-                    part = np.zeros((n_blocks, flat.shape[1], flat.shape[1]))
-                    part[b] = flat[sel].T @ flat[sel]
-                    sums.add_blocks("corr", part)
+            sums.add_gram("corr", runs, f.reshape(len(pos), -1))
             if near_pairs:
                 vals = np.empty((len(pos), len(near_pairs), 3, 3))
                 for j, (qa, qb) in enumerate(near_pairs):
@@ -255,14 +272,9 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
         # mutual information map (local: one matrix product of one-hot words)
         if mutual_information and local and spin_like:
             w = words(basis, bits)
-            oh = np.zeros((len(pos), 6 * n))
+            oh = np.zeros((len(pos), 6 * n), dtype=np.float32)  # counts: exact in float32 below 2^24
             oh[np.arange(len(pos))[:, None], 6 * np.arange(n) + w] = 1.0
-            for b in range(n_blocks):
-                sel = blocks == b
-                if sel.any():
-                    part = np.zeros((n_blocks, 6 * n, 6 * n))
-                    part[b] = oh[sel].T @ oh[sel]
-                    sums.add_blocks("mi_hist", part)
+            sums.add_gram("mi_hist", runs, oh)
             if multi:
                 o2 = np.zeros((len(pos), 2 * n))
                 o2[np.arange(len(pos))[:, None], 2 * np.arange(n) + bits] = 1.0

@@ -19,16 +19,21 @@ from .ensembles import BASIS_PAULI
 AXIS_CODES = BASIS_PAULI
 
 
-def local_columns(basis: np.ndarray, bits: np.ndarray, inv_lambda) -> np.ndarray:
+def local_columns(basis: np.ndarray, bits: np.ndarray, inv_lambda, dtype=np.float64) -> np.ndarray:
     """e[s, a, q] = [basis_q(s) = a] (-1)^(b_q(s)) / lambda_q for the local ensemble: (N, 3, n).
 
     With lambda_q = 1/3 these are the one-site estimators 3 [basis = a] (-1)^b;
-    calibrated (robust) shadows pass one noisy lambda per qubit.
+    calibrated (robust) shadows pass one noisy lambda per qubit. With
+    dtype float32 the values +-3 and their products are exact.
     """
-    sign = 1.0 - 2.0 * bits
-    inv = np.broadcast_to(np.asarray(inv_lambda, dtype=float), (bits.shape[1],))
-    onehot = basis[:, None, :] == np.arange(3)[None, :, None]
-    return onehot * (sign * inv)[:, None, :]
+    count, n = bits.shape
+    inv = np.broadcast_to(np.asarray(inv_lambda, dtype=dtype), (n,))
+    out = np.zeros((count, 3 * n), dtype=dtype)
+    # one scatter: entry (s, basis * n + q) = (-1)^b / lambda_q, all others zero
+    index = basis.astype(np.intp) * n + np.arange(n, dtype=np.intp)
+    index += (3 * n) * np.arange(count, dtype=np.intp)[:, None]
+    out.ravel()[index] = (1 - 2 * bits.astype(dtype)) * inv
+    return out.reshape(count, 3, n)
 
 
 def local_products(columns: np.ndarray, supports: np.ndarray, axes: np.ndarray) -> np.ndarray:
