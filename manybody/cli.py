@@ -166,9 +166,48 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", required=True, metavar="exact.nc", help="dataset to write")
     p.set_defaults(func=cmd_reference)
 
-    p = sub.add_parser("demo", formatter_class=_formatter, help="run the demo scenario end to end",
-                       description="Run the built-in demo scenario end to end.")
-    p.add_argument("-o", "--output", default="demo_runs/out", metavar="DIR", help="output folder")
+    p = sub.add_parser(
+        "plan", formatter_class=_formatter, help="snapshot budget per circuit depth for a target error",
+        description=(
+            "How many snapshots each depth needs so that the energy, the energy per site, the\n"
+            "correlations up to --distance and the purities of --subsystems reach a one-sigma\n"
+            "error EPS. Without --pilot the per-snapshot variances are the state-independent worst\n"
+            "cases; with a pilot shadow they use its estimated expectation values. Depth 0 is the\n"
+            "local ensemble; depth d > 0 are shallow circuits on the model's bonds."),
+        epilog=("examples:\n"
+                "  manybody plan demo_runs/tfim_chain.toml --error 0.05\n"
+                "  manybody plan demo_runs/tfim_chain.toml --error 0.02 --depths 0,1,2 --pilot gs.nc -o plan.nc"))
+    p.add_argument("spec", metavar="SPEC.toml", help="model spec")
+    p.add_argument("--error", type=float, required=True, metavar="EPS", help="target one-sigma error")
+    p.add_argument("--depths", default="0,1,2,3,4", metavar="D1,D2,...", help="candidate depths (default 0-4)")
+    p.add_argument("--distance", type=int, default=1, help="correlations up to this graph distance (default 1)")
+    p.add_argument("--subsystems", metavar="LIST", help="subsystems whose purities must reach EPS")
+    p.add_argument("--pilot", metavar="SHADOW.nc", help="pilot shadow: use its estimated expectation values")
+    p.add_argument("--shots", type=int, default=1, help="shots per setting (default 1)")
+    p.add_argument("-o", "--output", metavar="plan.nc", help="also write the table as a dataset")
+    p.set_defaults(func=cmd_plan)
+
+    p = sub.add_parser(
+        "report", formatter_class=_formatter, help="figures (PNG) and a summary table from results",
+        description=("Figures a group puts on a slide (correlation maps, energy density, Renyi-2 profile,\n"
+                     "S2(t) and correlations versus time for a series, mutual information) and summary.txt\n"
+                     "with error bars; with --reference the exact values are overlaid and listed."),
+        epilog="example:\n  manybody report results.nc --reference exact.nc -o report/")
+    p.add_argument("results", metavar="results.nc", help="dataset from 'manybody estimate'")
+    p.add_argument("--reference", metavar="exact.nc", help="dataset from 'manybody reference'")
+    p.add_argument("-o", "--output", required=True, metavar="DIR", help="folder for the figures and summary.txt")
+    p.set_defaults(func=cmd_report)
+
+    p = sub.add_parser(
+        "demo", formatter_class=_formatter, help="run the demo scenario end to end",
+        description=("Run the invented demo scenario end to end: an invented lab's quench of a 12-site\n"
+                     "Ising chain (with readout errors and a calibration run) and the ground state of a\n"
+                     "3 x 3 Heisenberg patch; simulate, estimate, compare with exact references, report."),
+        epilog="example:\n  manybody demo -o demo_out/")
+    p.add_argument("-o", "--output", default="demo_runs/out", metavar="DIR", help="output folder (default demo_runs/out)")
+    p.add_argument("--quick", action="store_true", help="fewer snapshots and times (about 20 s)")
+    p.add_argument("--seed", type=int, default=2026, help="random seed (default 2026)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_demo)
     return parser
 
@@ -385,8 +424,61 @@ def cmd_reference(args) -> int:
     return 0
 
 
+def cmd_plan(args) -> int:
+    from .estimate import parse_subsystems
+    from .plan import format_plan, pilot_expectations, plan
+    from .results import write_dataset
+    from .shadow import SHADOW_KIND, read_shadow
+
+    if not args.error > 0:
+        raise InputError(f"--error must be positive, got {args.error}")
+    try:
+        depths = [int(d) for d in args.depths.split(",") if d.strip()]
+    except ValueError:
+        raise InputError(f"--depths {args.depths!r}: expected whole numbers separated by commas") from None
+    if not depths or min(depths) < 0:
+        raise InputError(f"--depths {args.depths!r}: expected depths 0 or more")
+    model = load_model(args.spec)
+    expectation = None
+    if args.pilot:
+        pilot = read_shadow(args.pilot, kinds=(SHADOW_KIND,))
+        if pilot.n_qubits != model.n_qubits:
+            raise InputError(f"{args.pilot}: the pilot has {pilot.n_qubits} qubits but the model {model.n_qubits}")
+        expectation = pilot_expectations(pilot)
+    ds = plan(model, args.error, depths, args.distance, parse_subsystems(args.subsystems, model.n_sites),
+              expectation, max(1, args.shots))
+    print(format_plan(ds))
+    if args.output:
+        write_dataset(ds, args.output)
+        print(f"wrote {args.output}")
+    return 0
+
+
+def cmd_report(args) -> int:
+    import xarray as xr
+
+    from .report import write_report
+
+    def open_results(path):
+        if not os.path.exists(path):
+            raise InputError(f"{path}: no such file")
+        try:
+            return xr.open_dataset(path, engine="h5netcdf").load()
+        except Exception as exc:
+            raise InputError(f"{path}: not a readable results dataset ({type(exc).__name__})") from None
+
+    results = open_results(args.results)
+    reference = open_results(args.reference) if args.reference else None
+    for path in write_report(results, args.output, reference):
+        print(f"wrote {path}")
+    return 0
+
+
 def cmd_demo(args) -> int:
-    print("demo not available yet: the end-to-end scenario arrives with the estimation layer.")
+    from .demo import run_demo
+
+    run_demo(args.output, quick=args.quick, seed=args.seed,
+             progress=progress_bar(args, desc="snapshots", unit="chunk"))
     return 0
 
 

@@ -171,3 +171,19 @@ def test_calibration_from_another_ensemble(tmp_path):
                "--ensemble", "shallow", "--depth", "1", "-o", str(cal)).returncode == 0
     out = run("estimate", str(shadow), "--calibration", str(cal), "-o", str(tmp_path / "r.nc"))
     assert out.returncode == 2 and "was taken with another ensemble" in out.stderr
+
+
+def test_plan_and_report_commands(tmp_path):
+    out = run("plan", "demo_runs/tfim_chain.toml", "--error", "0.05", "--depths", "0,1,2", "-o", str(tmp_path / "p.nc"))
+    assert out.returncode == 0, out.stderr
+    assert "recommended" in out.stdout and (tmp_path / "p.nc").exists()
+    out = run("plan", "demo_runs/tfim_chain.toml", "--error", "-1")
+    assert out.returncode == 2 and "--error must be positive" in out.stderr
+    out = run("report", str(tmp_path / "absent.nc"), "-o", str(tmp_path / "rep"))
+    assert out.returncode == 2 and "no such file" in out.stderr
+
+
+def test_every_command_help_has_an_example():
+    for command in ("model", "plan", "prepare", "ingest", "simulate", "estimate", "reference", "report", "demo"):
+        out = run(command, "--help")
+        assert out.returncode == 0 and "example" in out.stdout, command
