@@ -197,7 +197,7 @@ def summary_table(ds, ref=None) -> str:
             if exact is None:
                 rows.append(f"  {name:<28}{value:>26}")
             else:
-                rows.append(f"  {name:<28}{value:>26}   exact {exact:.5g}")
+                rows.append(f"  {name:<28}{value:>26}   exact {exact + 0.0:.5g}")
     return "\n".join(rows)
 
 
