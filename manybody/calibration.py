@@ -23,9 +23,7 @@ class Calibration:
 
     def __init__(self, shadow):
         self.ensemble = shadow.ensemble
-        parts = [(pos, np.repeat(bits, counts, axis=0), counts) for pos, bits, counts in shadow.chunks()]
-        self.positions = np.concatenate([np.repeat(p, c) for p, _, c in parts])
-        self.bits = np.concatenate([b for _, b, _ in parts])
+        self.positions, self.bits = shadow.snapshots()
         self.settings = shadow.settings
         self._cache: dict[bytes, float] = {}
         n = self.ensemble.n_qubits

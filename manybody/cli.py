@@ -96,6 +96,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--label", action="append", metavar="KEY=VALUE",
                    help="label of this shadow, e.g. time=0.5 (repeatable)")
     p.add_argument("-o", "--output", required=True, metavar="shadow.nc", help="shadow file to write")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_ingest)
 
     p = sub.add_parser(
@@ -138,7 +139,8 @@ def build_parser() -> argparse.ArgumentParser:
             "purities, Renyi-2 entropies and the mutual-information map, each with a one-sigma\n"
             "error bar (delete-one-block jackknife over blocks of whole settings by default).\n"
             "Several shadows (a quench series) give one dataset with a time (or label) dimension.\n"
-            "LIST: subsystems separated by ';', each an inclusive range a-b or a list a,b,c of sites."),
+            "LIST: subsystems separated by ';', each an inclusive range a-b or a list a,b,c of sites;\n"
+            "'profile' gives the entropy profile 0;0-1;0-2;... up to half the system."),
         epilog=("examples:\n"
                 "  manybody estimate gs.nc --subsystems '0-5;0;0-1' -o results.nc\n"
                 "  manybody estimate quench/*.nc --subsystems 0-5 --calibration cal.nc -o series.nc"))
@@ -289,6 +291,7 @@ def cmd_prepare(args) -> int:
 
 def cmd_ingest(args) -> int:
     from .ingest import ingest, parse_labels
+    from .records import BLOCK_BYTES
     from .shadow import SETTINGS_KIND, SHADOW_KIND, read_shadow
 
     labels = parse_labels(args.label)
@@ -300,7 +303,10 @@ def cmd_ingest(args) -> int:
     shadow, n_records, n_snapshots = ingest(
         args.records, args.output, settings, n_qubits=model.n_qubits if model else None,
         qubit_site=model.qubit_site if model else None, model_spec=model.spec.text if model else "",
-        label=labels, settings_path=args.settings or "the settings file")
+        label=labels, settings_path=args.settings or "the settings file",
+        progress=progress_bar(args, desc="records", unit="block",
+                              total=-(-os.path.getsize(args.records) // BLOCK_BYTES) if os.path.exists(args.records)
+                              else None))
     label = ", ".join(f"{k} = {v}" for k, v in shadow.label.items())
     print(f"wrote {n_snapshots} snapshots in {n_records} records over "
           f"{len(shadow.settings)} settings ({shadow.ensemble.kind} ensemble, {shadow.n_qubits} qubits"

@@ -43,9 +43,11 @@ class Subsystem:
 
 
 def parse_subsystems(text: str | None, n_sites: int) -> list[Subsystem]:
-    """'a-b' ranges or 'a,b,c' lists separated by ';' (INTERFACE.md)."""
+    """'a-b' ranges or 'a,b,c' lists separated by ';' (INTERFACE.md); 'profile' = 0;0-1;...;0-(n/2-1)."""
     if not text:
         return []
+    if text.strip() == "profile":  # the entropy profile: intervals 0..k-1 up to half the system
+        text = ";".join(f"0-{k}" if k else "0" for k in range(max(n_sites // 2, 1)))
     out = []
     for part in text.split(";"):
         label = part.strip()

@@ -90,7 +90,8 @@ class _SettingBases:
 
 
 def ingest(path, output, settings: Shadow | None = None, n_qubits: int | None = None, qubit_site=None,
-           model_spec: str = "", label: dict | None = None, settings_path: str = "the settings file"):
+           model_spec: str = "", label: dict | None = None, settings_path: str = "the settings file",
+           progress=None):
     """Stream a records CSV into the shadow file ``output`` (atomically).
 
     Without ``settings`` the records must be local-ensemble rows with a
@@ -109,7 +110,8 @@ def ingest(path, output, settings: Shadow | None = None, n_qubits: int | None = 
     known = None
     n_records = n_snapshots = 0
     with ShadowWriter(output) as out:
-        for block in read_records(path, n_qubits=n_qubits, with_basis=(kind == "local")):
+        blocks = read_records(path, n_qubits=n_qubits, with_basis=(kind == "local"))
+        for block in (progress(blocks) if progress else blocks):
             n_qubits = block.outcome.shape[1]
             if settings is not None:
                 _check_against_settings(block, settings, sorted_ids, ids_sorted, path, settings_path)

@@ -72,9 +72,7 @@ def pilot_expectations(shadow):
     """<P> estimated from a pilot shadow: a callable PauliExpansion -> array, for the planner."""
     from .propagation import snapshot_values
 
-    parts = [(p, np.repeat(b, c, axis=0), c) for p, b, c in shadow.chunks()]
-    positions = np.concatenate([np.repeat(p, c) for p, _, c in parts])
-    bits = np.concatenate([b for _, b, _ in parts])
+    positions, bits = shadow.snapshots()
     ens, settings = shadow.ensemble, shadow.settings
 
     def expectation(op: PauliExpansion) -> np.ndarray:

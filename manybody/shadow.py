@@ -104,6 +104,13 @@ class Shadow:
             else:
                 yield order[np.searchsorted(ids[order], setting_ids)], outcomes, counts
 
+    def snapshots(self) -> tuple[np.ndarray, np.ndarray]:
+        """All snapshots in memory, one row each: (setting positions, outcome bits); counts expanded."""
+        parts = [(np.repeat(p, c), np.repeat(b, c, axis=0)) for p, b, c in self.chunks()]
+        if not parts:
+            return np.zeros(0, dtype=np.int64), np.zeros((0, self.n_qubits), dtype=np.uint8)
+        return np.concatenate([p for p, _ in parts]), np.concatenate([b for _, b in parts])
+
     def with_records(self, record_setting, outcomes, counts, **changes) -> "Shadow":
         return replace(self, record_setting=record_setting, outcomes=outcomes, counts=counts, **changes)
 

@@ -278,3 +278,9 @@ def test_depth_trade_off_observed():
     errs = depth_errors((0, 1, 2))
     assert errs[0][0] < errs[2][0]
     assert errs[1][1] < errs[0][1] and errs[2][1] < errs[0][1]
+
+
+def test_profile_subsystems():
+    subs = parse_subsystems("profile", 8)
+    assert [s.label for s in subs] == ["0", "0-1", "0-2", "0-3"]
+    assert [s.sites for s in subs][-1] == (0, 1, 2, 3)
