@@ -13,8 +13,8 @@ worst cases:
 With a pilot shadow the estimated <P> replace the worst cases: a single
 Pauli gets 1/lambda_P - <P>^2; the energy gets, for the local ensemble, the
 exact sum over pairs of terms sum c_P c_Q 3^|P n Q| <PQ> - <H>^2 (terms that
-agree where they overlap), and for circuit ensembles the sum of the term
-variances (covariances between terms left out).
+agree where they overlap); for circuit ensembles the same sum with the joint
+visibility Pr(P and Q both Z-type) averaged over 20000 random settings.
 The number of snapshots for error eps is N = variance / eps^2.
 """
 
@@ -28,6 +28,9 @@ from hamiltonians.pauli import PauliExpansion
 from .ensembles import LocalEnsemble, ShallowEnsemble
 from .estimators import paulis_on, pauli_string_codes
 from .prepare import coupling_of
+
+#: random settings over which the joint visibility of two terms is averaged
+COVARIANCE_SETTINGS = 20000
 
 
 def _ensemble(model, depth: int):
@@ -64,8 +67,22 @@ def energy_variance_with_expectations(op: PauliExpansion, ens, expectation) -> f
         products = PauliExpansion(op.n_qubits, op.x[i] ^ op.x[j], op.z[i] ^ op.z[j], np.ones(len(i)))
         total = float(np.sum(coeffs[i] * coeffs[j] * 3.0**shared * expectation(products)))
         return max(total - mean**2, 0.0)
+    # circuit ensembles: E[o_P o_Q] = s <R> J(P, Q) / (lambda_P lambda_Q) for commuting P, Q with
+    # PQ = s R, J = Pr_U(U P U^dag and U Q U^dag both Z-type), estimated over random settings
+    from hamiltonians.pauli import product_phase
+
+    from .propagation import setting_factors
+
     lam = np.array([ens.eigenvalue(c != 0) for c in codes])
-    return float(np.sum(coeffs**2 * (1 / lam - expectation(op) ** 2)))
+    settings = ens.draw(COVARIANCE_SETTINGS, np.random.default_rng(12345))
+    visible = np.stack([setting_factors(c, ens, settings)[1] != 0 for c in codes], axis=1).astype(float)
+    joint = visible.T @ visible / len(settings)
+    i, j = np.nonzero(joint)
+    x3, z3, k = product_phase(op.x[i], op.z[i], op.x[j], op.z[j])
+    sign = np.where(k % 4 == 0, 1.0, -1.0)  # visible pairs commute: PQ = +-R
+    expect_r = expectation(PauliExpansion(op.n_qubits, x3, z3, np.ones(len(i))))
+    total = float(np.sum(coeffs[i] * coeffs[j] * sign * expect_r * joint[i, j] / (lam[i] * lam[j])))
+    return max(total - mean**2, 0.0)
 
 
 def pilot_expectations(shadow):

@@ -284,3 +284,11 @@ def test_profile_subsystems():
     subs = parse_subsystems("profile", 8)
     assert [s.label for s in subs] == ["0", "0-1", "0-2", "0-3"]
     assert [s.sites for s in subs][-1] == (0, 1, 2, 3)
+
+
+def test_non_positive_purity_gives_nan_with_warning():
+    from manybody.estimate import _renyi
+
+    with pytest.warns(RuntimeWarning, match="purity estimate"):
+        s2, err = _renyi(np.array([-0.01, 0.5]), np.array([0.1, 0.1]))
+    assert np.isnan(s2[0]) and np.isnan(err[0]) and s2[1] == pytest.approx(np.log(2))

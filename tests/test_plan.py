@@ -32,7 +32,7 @@ def test_predicted_errors_match_observed_spread():
     # 50 independent shadows per depth, N = 1500 snapshots: the standard deviation of the
     # estimates matches the planner's prediction sqrt(var / N) within 25% for the
     # nearest-neighbour ZZ correlation (exact per-snapshot variance 1/lambda - <P>^2,
-    # DESIGN.md section 6) at depths 0-2, and for the energy at depth 0 (exact local formula).
+    # DESIGN.md section 6) and for the energy (covariances between terms included) at depths 0-2.
     model, psi, expectation = setup()
     n_snap, eps = 1500, 0.1
     ds = plan(model, eps, depths=(0, 1, 2), distance=1, expectation=expectation)
@@ -50,6 +50,5 @@ def test_predicted_errors_match_observed_spread():
         p = float(expectation(__import__("hamiltonians").PauliExpansion.from_strings("IIZZII"))[0])
         predicted_corr = np.sqrt((1 / lam - p**2) / n_snap)
         assert np.std(corr, ddof=1) == pytest.approx(predicted_corr, rel=0.25)
-        if depth == 0:
-            predicted_energy = np.sqrt(ds.energy.values[i] * eps**2 / n_snap)
-            assert np.std(energies, ddof=1) == pytest.approx(predicted_energy, rel=0.25)
+        predicted_energy = np.sqrt(ds.energy.values[i] * eps**2 / n_snap)
+        assert np.std(energies, ddof=1) == pytest.approx(predicted_energy, rel=0.25)
