@@ -91,11 +91,6 @@ class Model:
     def n_sites(self) -> int:
         return self.lattice.n_sites
 
-    @property
-    def is_one_dimensional(self) -> bool:
-        """Chains and ladders: DMRG and TEBD references apply."""
-        return self.lattice.is_one_dimensional
-
 
 def _type_name(value) -> str:
     return {bool: "a boolean", int: "an integer", float: "a number", str: "a string",

@@ -127,8 +127,6 @@ def state_energy(model, psi) -> float:
     ham = model.hamiltonian
     if isinstance(psi, np.ndarray):
         return float(exact.expectation(ham, psi))
-    from quimb.tensor import MatrixProductState  # noqa: F401
-
     mpo = ham.to_mpo()
     return float(np.real(psi.H @ (mpo.apply(psi))) / np.real(psi.H @ psi))
 
