@@ -282,6 +282,13 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
                 o2[np.arange(len(pos))[:, None], 2 * np.arange(n) + bits] = 1.0
                 if k * (2 * n) ** 2 <= 2e7:
                     per_setting_add("mi_joint", pos, o2[:, :, None] * o2[:, None, :])
+        elif mutual_information and spin_like and correlations and not multi:
+            # circuit ensembles: two-site Pauli vectors from one-site columns (exact where
+            # light cones do not overlap) and the explicit near pairs; their squares give the i = j terms
+            flat = f.reshape(len(pos), -1)
+            sums.add_gram("corr_sq", runs, flat * flat)
+            if near_pairs:
+                sums.add("near_sq", onehot, vals**2)
 
     # within-setting sums, now that every setting is complete
     if multi:
@@ -306,7 +313,7 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
 
     return _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near_pairs, method,
                     _reciprocal_points(model) if correlations and spin_like else None,
-                    correlations, mutual_information and local and spin_like and ("mi_hist" in sums.data),
+                    correlations, mutual_information and spin_like and ("mi_hist" in sums.data or "corr_sq" in sums.data),
                     squared is not None, multi, lam, terms is not None,
                     calibration is not None)
 
@@ -488,6 +495,8 @@ def _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near
             out["purity"] = np.array(purities, dtype=float)
         if mutual_information and "mi_hist" in s and (not multi or "mi_within" in s):
             out["mi_purity"] = _mi_purities(s, n, factors_inv, pairs, multi)
+        elif mutual_information and "corr_sq" in s:
+            out["mi_purity"] = _mi_purities_paulis(s, n, near_pairs, pairs)
         return out
 
     # block sums for the pair-count purities: the leave-one-out sum is not total - block,
@@ -534,6 +543,30 @@ def _pair_count_jackknife(pair_count, blocks, qubits_of):
         loo = np.array(loo)
         err[i] = np.sqrt((nb - 1) / nb * np.sum((loo - loo.mean()) ** 2))
     return full, err
+
+
+def _mi_purities_paulis(s, n, near_pairs, pairs):
+    """Single-site (diagonal) and two-site purities from Pauli-vector sums, one shot per setting.
+
+    tr rho_ab^2 = (|V|^2 - sum_i |v_i|^2) / (4 pairs) with v_i over the 16 Paulis on (a, b):
+    |V|^2 = N^2 + sum M_a^2 + sum M_b^2 + sum C_ab^2 and sum_i |v_i|^2 = N + S_a + S_b + Q_ab,
+    M the one-site sums, C the two-site sums, S and Q the sums of squares.
+    """
+    count = s["n"]
+    mag = s["mag"]  # (3, n)
+    corr = s["corr"].reshape(3, n, 3, n).copy()
+    squares = s["corr_sq"].reshape(3, n, 3, n).copy()
+    if "near" in s:
+        for j, (a, b) in enumerate(near_pairs):
+            corr[:, a, :, b], corr[:, b, :, a] = s["near"][j], s["near"][j].T
+            squares[:, a, :, b], squares[:, b, :, a] = s["near_sq"][j], s["near_sq"][j].T
+    m2 = np.sum(mag**2, axis=0)  # (n,)
+    own = np.einsum("xaxa->a", s["corr"].reshape(3, n, 3, n))  # sum_i f_ia^2 over axes
+    vv = count**2 + m2[:, None] + m2[None, :] + np.einsum("xayb,xayb->ab", corr, corr)
+    ww = count + own[:, None] + own[None, :] + np.einsum("xayb->ab", squares)
+    out = (vv - ww) / (4 * pairs)
+    out[np.diag_indices(n)] = (count**2 + m2 - count - own) / (2 * pairs)
+    return out
 
 
 def _mi_purities(s, n, inv, pairs, multi):
