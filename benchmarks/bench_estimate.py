@@ -30,7 +30,7 @@ warnings.filterwarnings("ignore")
 
 from manybody.clifford import clifford_table  # noqa: E402
 from manybody.ensembles import LocalEnsemble, ShallowEnsemble  # noqa: E402
-from manybody.estimate import estimate, parse_subsystems  # noqa: E402
+from manybody.estimate import estimate  # noqa: E402
 from manybody.estimators import (histogram_index, histogram_pair_sum, local_columns, pair_count_sum,  # noqa: E402
                                  site_factor_matrix, words)
 from manybody.propagation import snapshot_values  # noqa: E402

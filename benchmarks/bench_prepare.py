@@ -12,7 +12,6 @@ import os
 import tempfile
 import time
 
-import numpy as np
 import stim
 
 from hamiltonians.spec import parse_spec

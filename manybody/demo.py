@@ -16,7 +16,6 @@ from __future__ import annotations
 import os
 import time
 
-import numpy as np
 
 from hamiltonians.spec import load_model
 

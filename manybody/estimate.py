@@ -22,15 +22,14 @@ from . import __version__
 from .ensembles import BASIS_PAULI
 from .errorbars import METHODS, analytic, jackknife, median_of_means
 from .errors import InputError
-from .estimators import (histogram_index, histogram_pair_sum, local_columns, local_products,
-                         pair_count_sum, pauli_string_codes, paulis_on, site_factor_matrix, words)
+from .estimators import histogram_pair_sum, local_columns, local_products, pauli_string_codes, site_factor_matrix, words
 from .propagation import snapshot_values
+from .purity import (mi_purities, mi_purities_paulis, mi_within, outcome_within, pair_count_blocks,
+                     pair_count_jackknife, purity_chunk)
 
 AXES = ("X", "Y", "Z")
 #: one-qubit Pauli code -> axis index
 CODE_AXIS = {1: 0, 3: 1, 2: 2}
-HISTOGRAM_MAX_SITES = 8
-PAULI_VECTOR_MAX_QUBITS = 6
 MAX_SQUARED_TERMS = 20000
 
 
@@ -269,7 +268,7 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
 
         # purities of the chosen subsystems
         for i, qs in enumerate(qubits_of):
-            _purity_chunk(i, qs, local, lam, ens, sub, where, pos, bits, basis, onehot, sums, multi,
+            purity_chunk(i, qs, local, lam, ens, sub, where, pos, bits, basis, onehot, sums, multi,
                           per_setting_add, pair_words)
         # mutual information map (local: one matrix product of one-hot words)
         if mutual_information and local and spin_like:
@@ -302,14 +301,14 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
                 sums.add_blocks(f"pw{i}", _within(per_set[name], setting_block, n_blocks).sum(axis=1))
             name = f"oh{i}"
             if name in per_set:
-                sums.add_blocks(f"hw{i}", _outcome_within(per_set[name], setting_block, n_blocks, len(qs),
+                sums.add_blocks(f"hw{i}", outcome_within(per_set[name], setting_block, n_blocks, len(qs),
                                                           lam.inv_local(n)[qs]))
         if "mi_joint" in per_set:
-            sums.add_blocks("mi_within", _mi_within(per_set["mi_joint"], setting_block, n_blocks, n,
+            sums.add_blocks("mi_within", mi_within(per_set["mi_joint"], setting_block, n_blocks, n,
                                                     lam.inv_local(n)))
     for i, qs in enumerate(qubits_of):
         if pair_words[i]:
-            sums.add_blocks(f"pc{i}", _pair_count_blocks(pair_words[i], qs, lam.inv_local(n), n_blocks, multi))
+            sums.add_blocks(f"pc{i}", pair_count_blocks(pair_words[i], qs, lam.inv_local(n), n_blocks, multi))
 
     return _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near_pairs, method,
                     _reciprocal_points(model) if correlations and spin_like else None,
@@ -345,83 +344,6 @@ def _term_values(codes, lam_terms, f, local, ens, st, pos, bits):
     for t, c in enumerate(codes):
         out[:, t] = 1.0 if weight[t] == 0 else snapshot_values(c, ens, st, pos, bits) / lam_terms[t]
     return out
-
-
-def _purity_chunk(i, qs, local, lam, ens, sub, where, pos, bits, basis, onehot, sums, multi, per_setting_add,
-                  pair_words):
-    k = len(qs)
-    if local and k <= HISTOGRAM_MAX_SITES:
-        w = words(basis[:, qs], bits[:, qs])
-        idx = histogram_index(w)
-        part = np.zeros((onehot.shape[1], 6**k))
-        np.add.at(part, (np.argmax(onehot, axis=1), idx), 1.0)
-        sums.add_blocks(f"hist{i}", part)
-        if multi:
-            out_idx = bits[:, qs] @ (2 ** np.arange(k - 1, -1, -1))
-            o = np.zeros((len(pos), 2**k))
-            o[np.arange(len(pos)), out_idx] = 1.0
-            per_setting_add(f"oh{i}", pos, o)
-        else:
-            inv = lam.inv_local(ens.n_qubits)[qs]
-            diag = np.prod((1 + inv**2) / 2)  # tr(rho_i^A rho_i^A) of one snapshot
-            sums.add(f"hw{i}", onehot, np.full(len(pos), diag))
-    elif local:
-        pair_words[i].append((words(basis[:, qs], bits[:, qs]), pos, np.argmax(onehot, axis=1)))
-    else:
-        if len(qs) > PAULI_VECTOR_MAX_QUBITS:
-            raise InputError(f"purities of {len(qs)} qubits need the local ensemble; circuit ensembles take "
-                             f"subsystems of at most {PAULI_VECTOR_MAX_QUBITS} qubits")
-        codes = paulis_on(qs, ens.n_qubits)
-        v = np.ones((len(pos), len(codes)))
-        for r in range(1, len(codes)):
-            v[:, r] = snapshot_values(codes[r], ens, sub, where, bits) / lam.of(codes[r])
-        sums.add(f"pv{i}", onehot, v)
-        if multi:
-            per_setting_add(f"pv{i}", pos, v)
-        else:
-            sums.add(f"pw{i}", onehot, np.sum(v * v, axis=1))
-
-
-def _outcome_within(hists, setting_block, n_blocks, k, inv):
-    """Within-setting pair sums of tr(rho_i rho_j) from per-setting outcome histograms (same bases)."""
-    out = np.zeros(n_blocks)
-    for b in range(n_blocks):
-        h = hists[setting_block == b]
-        g = h.reshape((-1,) + (2,) * k)
-        for q in range(k):
-            f2 = np.array([[(1 + inv[q] ** 2) / 2, (1 - inv[q] ** 2) / 2],
-                           [(1 - inv[q] ** 2) / 2, (1 + inv[q] ** 2) / 2]])
-            g = np.moveaxis(np.tensordot(f2, g, axes=([1], [q + 1])), 0, q + 1)
-        out[b] = np.sum(g.reshape(len(h), -1) * h)
-    return out
-
-
-def _mi_within(joint, setting_block, n_blocks, n, inv):
-    """Within-setting pair sums for every site pair (off-diagonal) and every site (diagonal).
-
-    ``joint`` (K, 2n, 2n) holds per setting the counts of outcome pairs
-    (site a outcome u, site b outcome v); the bases are fixed within a setting.
-    """
-    out = np.zeros((n_blocks, n, n))
-    f2 = np.zeros((n, 2, 2))
-    for q in range(n):
-        s = inv[q] ** 2
-        f2[q] = [[(1 + s) / 2, (1 - s) / 2], [(1 - s) / 2, (1 + s) / 2]]
-    for b in range(n_blocks):
-        j = joint[setting_block == b].reshape(-1, n, 2, n, 2)
-        g = np.einsum("auv,savbw,bwx->saubx", f2, j, f2)
-        out[b] = np.einsum("saubx,saubx->ab", g, j)
-        single = np.einsum("sauau->sau", j)  # outcome counts of each site
-        out[b][np.diag_indices(n)] = np.einsum("sau,auv,sav->a", single, f2, single)
-    return out
-
-
-def _pair_count_blocks(parts, qs, inv_local, n_blocks, multi):
-    """Block-by-block matrix of cross-setting pair sums for a large local subsystem."""
-    w = np.concatenate([p[0] for p in parts])
-    setting = np.concatenate([p[1] for p in parts])
-    block = np.concatenate([p[2] for p in parts])
-    return pair_count_sum(w, inv_local[qs], exclude=setting, blocks=block, n_blocks=n_blocks)
 
 
 def _reciprocal_points(model):
@@ -494,16 +416,16 @@ def _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near
         if purities:
             out["purity"] = np.array(purities, dtype=float)
         if mutual_information and "mi_hist" in s and (not multi or "mi_within" in s):
-            out["mi_purity"] = _mi_purities(s, n, factors_inv, pairs, multi)
+            out["mi_purity"] = mi_purities(s, n, factors_inv, pairs, multi)
         elif mutual_information and "corr_sq" in s:
-            out["mi_purity"] = _mi_purities_paulis(s, n, near_pairs, pairs)
+            out["mi_purity"] = mi_purities_paulis(s, n, near_pairs, pairs)
         return out
 
     # block sums for the pair-count purities: the leave-one-out sum is not total - block,
     # so they are evaluated separately and merged.
     full, err = jackknife(estimator, blocks)
     if pair_count:
-        full_pc, err_pc = _pair_count_jackknife(pair_count, blocks, qubits_of)
+        full_pc, err_pc = pair_count_jackknife(pair_count, blocks, qubits_of)
         if full_pc:
             order = [i for i in range(len(qubits_of))]
             purity = full.get("purity", np.array([]))
@@ -522,73 +444,6 @@ def _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near
         _plain_mean_errors(method, blocks, full, err, n)
     return _to_dataset(shadow, model, full, err, subsystems, n, n_sites, method, multi, calibrated, blocks,
                        reciprocal)
-
-
-def _pair_count_jackknife(pair_count, blocks, qubits_of):
-    n_tot = blocks["n"].sum()
-    n2_tot = blocks["n2"].sum()
-    full, err = {}, {}
-    for name, mat in pair_count.items():
-        i = int(name[2:])
-        nb = len(mat)
-        total = mat.sum()
-        pairs = n_tot**2 - n2_tot
-        full[i] = total / pairs
-        loo = []
-        for b in range(nb):
-            sub = total - 2 * mat[b].sum() + mat[b, b]
-            nn = n_tot - blocks["n"][b]
-            pp = nn**2 - (n2_tot - blocks["n2"][b])
-            loo.append(sub / pp)
-        loo = np.array(loo)
-        err[i] = np.sqrt((nb - 1) / nb * np.sum((loo - loo.mean()) ** 2))
-    return full, err
-
-
-def _mi_purities_paulis(s, n, near_pairs, pairs):
-    """Single-site (diagonal) and two-site purities from Pauli-vector sums, one shot per setting.
-
-    tr rho_ab^2 = (|V|^2 - sum_i |v_i|^2) / (4 pairs) with v_i over the 16 Paulis on (a, b):
-    |V|^2 = N^2 + sum M_a^2 + sum M_b^2 + sum C_ab^2 and sum_i |v_i|^2 = N + S_a + S_b + Q_ab,
-    M the one-site sums, C the two-site sums, S and Q the sums of squares.
-    """
-    count = s["n"]
-    mag = s["mag"]  # (3, n)
-    corr = s["corr"].reshape(3, n, 3, n).copy()
-    squares = s["corr_sq"].reshape(3, n, 3, n).copy()
-    if "near" in s:
-        for j, (a, b) in enumerate(near_pairs):
-            corr[:, a, :, b], corr[:, b, :, a] = s["near"][j], s["near"][j].T
-            squares[:, a, :, b], squares[:, b, :, a] = s["near_sq"][j], s["near_sq"][j].T
-    m2 = np.sum(mag**2, axis=0)  # (n,)
-    own = np.einsum("xaxa->a", s["corr"].reshape(3, n, 3, n))  # sum_i f_ia^2 over axes
-    vv = count**2 + m2[:, None] + m2[None, :] + np.einsum("xayb,xayb->ab", corr, corr)
-    ww = count + own[:, None] + own[None, :] + np.einsum("xayb->ab", squares)
-    out = (vv - ww) / (4 * pairs)
-    out[np.diag_indices(n)] = (count**2 + m2 - count - own) / (2 * pairs)
-    return out
-
-
-def _mi_purities(s, n, inv, pairs, multi):
-    """Purities of every single site (diagonal) and site pair from the one-hot word histogram."""
-    h = s["mi_hist"].reshape(n, 6, n, 6)
-    f = np.array([site_factor_matrix(inv[q]) for q in range(n)])  # (n, 6, 6)
-    g = np.einsum("auv,avbw,bwx->aubx", f, h, f)
-    pair_sum = np.einsum("aubx,aubx->ab", g, h)
-    # diagonal blocks: H[a, u, a, u'] is diagonal, so the single-site sum is h_a F h_a
-    single = np.einsum("au,auv,av->a", np.einsum("auau->au", h), f, np.einsum("auau->au", h))
-    diag_each = (1 + inv**2) / 2
-    if "mi_within" in s:  # several shots per setting
-        within_pair = s["mi_within"]
-        within_single = np.diagonal(within_pair).copy()
-    else:  # one shot per setting: only i = j pairs
-        within_pair = s["n"] * np.outer(diag_each, diag_each)
-        within_single = s["n"] * diag_each
-    purity_pair = (pair_sum - within_pair) / pairs
-    purity_single = (single - within_single) / pairs
-    out = purity_pair.copy()
-    out[np.diag_indices(n)] = purity_single
-    return out
 
 
 def _plain_mean_errors(method, blocks, full, err, n):

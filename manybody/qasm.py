@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import os
 
-import numpy as np
 
 from .clifford import clifford_table
 from .ensembles import BASIS_LETTERS, Settings

@@ -3,7 +3,6 @@
 import numpy as np
 import pytest
 
-from hamiltonians import build_lattice
 from hamiltonians.spec import parse_spec
 from manybody import exact
 from manybody.calibration import Calibration
