@@ -56,6 +56,27 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=cmd_model)
 
     p = sub.add_parser(
+        "plan", formatter_class=_formatter, help="snapshot budget per circuit depth for a target error",
+        description=(
+            "How many snapshots each depth needs so that the energy, the energy per site, the\n"
+            "correlations up to --distance and the purities of --subsystems reach a one-sigma\n"
+            "error EPS. Without --pilot the per-snapshot variances are the state-independent worst\n"
+            "cases; with a pilot shadow they use its estimated expectation values. Depth 0 is the\n"
+            "local ensemble; depth d > 0 are shallow circuits on the model's bonds."),
+        epilog=("examples:\n"
+                "  manybody plan demo_runs/tfim_chain.toml --error 0.05\n"
+                "  manybody plan demo_runs/tfim_chain.toml --error 0.02 --depths 0,1,2 --pilot gs.nc -o plan.nc"))
+    p.add_argument("spec", metavar="SPEC.toml", help="model spec")
+    p.add_argument("--error", type=float, required=True, metavar="EPS", help="target one-sigma error")
+    p.add_argument("--depths", default="0,1,2,3,4", metavar="D1,D2,...", help="candidate depths (default 0-4)")
+    p.add_argument("--distance", type=int, default=1, help="correlations up to this graph distance (default 1)")
+    p.add_argument("--subsystems", metavar="LIST", help="subsystems whose purities must reach EPS")
+    p.add_argument("--pilot", metavar="SHADOW.nc", help="pilot shadow: use its estimated expectation values")
+    p.add_argument("--shots", type=int, default=1, help="shots per setting (default 1)")
+    p.add_argument("-o", "--output", metavar="plan.nc", help="also write the table as a dataset")
+    p.set_defaults(func=cmd_plan)
+
+    p = sub.add_parser(
         "prepare", formatter_class=_formatter, help="draw measurement settings (and export circuits)",
         description=(
             "Draw random measurement settings for a model and store them in a settings file.\n"
@@ -166,27 +187,6 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--subsystems", metavar="LIST", help="subsystems for purities and Renyi-2 entropies")
     p.add_argument("-o", "--output", required=True, metavar="exact.nc", help="dataset to write")
     p.set_defaults(func=cmd_reference)
-
-    p = sub.add_parser(
-        "plan", formatter_class=_formatter, help="snapshot budget per circuit depth for a target error",
-        description=(
-            "How many snapshots each depth needs so that the energy, the energy per site, the\n"
-            "correlations up to --distance and the purities of --subsystems reach a one-sigma\n"
-            "error EPS. Without --pilot the per-snapshot variances are the state-independent worst\n"
-            "cases; with a pilot shadow they use its estimated expectation values. Depth 0 is the\n"
-            "local ensemble; depth d > 0 are shallow circuits on the model's bonds."),
-        epilog=("examples:\n"
-                "  manybody plan demo_runs/tfim_chain.toml --error 0.05\n"
-                "  manybody plan demo_runs/tfim_chain.toml --error 0.02 --depths 0,1,2 --pilot gs.nc -o plan.nc"))
-    p.add_argument("spec", metavar="SPEC.toml", help="model spec")
-    p.add_argument("--error", type=float, required=True, metavar="EPS", help="target one-sigma error")
-    p.add_argument("--depths", default="0,1,2,3,4", metavar="D1,D2,...", help="candidate depths (default 0-4)")
-    p.add_argument("--distance", type=int, default=1, help="correlations up to this graph distance (default 1)")
-    p.add_argument("--subsystems", metavar="LIST", help="subsystems whose purities must reach EPS")
-    p.add_argument("--pilot", metavar="SHADOW.nc", help="pilot shadow: use its estimated expectation values")
-    p.add_argument("--shots", type=int, default=1, help="shots per setting (default 1)")
-    p.add_argument("-o", "--output", metavar="plan.nc", help="also write the table as a dataset")
-    p.set_defaults(func=cmd_plan)
 
     p = sub.add_parser(
         "report", formatter_class=_formatter, help="figures (PNG) and a summary table from results",
