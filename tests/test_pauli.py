@@ -47,7 +47,11 @@ def test_algebra_matches_dense(data):
     assert np.allclose((pa * pb).to_dense(), ma @ mb)
     assert np.allclose(pa.adjoint().to_dense(), ma.conj().T)
     assert np.allclose(pa.simplify().to_dense(), ma)
-    assert pa.is_hermitian(1e-9) == np.allclose(ma, ma.conj().T, atol=1e-9)
+    # Hermiticity: decided away from the tolerance (imaginary parts of combined coefficients
+    # either clearly below or clearly above it)
+    imag = np.abs(pa.combined().coeffs.imag).max(initial=0)
+    if not 1e-10 < imag < 1e-8:
+        assert pa.is_hermitian(1e-9) == np.allclose(ma, ma.conj().T, atol=1e-9)
 
 
 @settings(max_examples=30, deadline=None)
