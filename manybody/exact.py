@@ -97,10 +97,16 @@ def product_state(letters: str) -> np.ndarray:
 # ------------------------------------------------------------ matrix products
 def ground_state_mps(ham: PauliExpansion, bond_dims=(16, 32, 64, 128), cutoff: float = 1e-10,
                      tol: float = 1e-9, max_sweeps: int = 20):
-    """DMRG ground state (quimb DMRG2) of a Pauli sum along the qubit order: (energy, MPS)."""
+    """DMRG ground state (quimb DMRG2) of a Pauli sum along the qubit order: (energy, MPS).
+
+    The starting state is a seeded random MPS, so the result is reproducible.
+    """
     import quimb.tensor as qtn
 
-    dmrg = qtn.DMRG2(ham.to_mpo(), bond_dims=list(bond_dims), cutoffs=cutoff)
+    mpo = ham.to_mpo()
+    # a seeded starting state: the same Hamiltonian always gives the same MPS
+    start = qtn.MPS_rand_state(ham.n_qubits, bond_dim=min(8, list(bond_dims)[0]), seed=0, dtype=mpo.dtype)
+    dmrg = qtn.DMRG2(mpo, bond_dims=list(bond_dims), cutoffs=cutoff, p0=start)
     dmrg.solve(tol=tol, max_sweeps=max_sweeps, verbosity=0)
     return float(np.real(dmrg.energy)), dmrg.state
 
