@@ -291,3 +291,22 @@ def test_non_positive_purity_gives_nan_with_warning():
     with pytest.warns(RuntimeWarning, match="purity estimate"):
         s2, err = _renyi(np.array([-0.01, 0.5]), np.array([0.1, 0.1]))
     assert np.isnan(s2[0]) and np.isnan(err[0]) and s2[1] == pytest.approx(np.log(2))
+
+
+@pytest.mark.parametrize("method", ["median-of-means", "analytic"])
+def test_other_error_methods(method):
+    # Median-of-means (Huang, Kueng, Preskill 2020) and the analytic standard error of a mean:
+    # the energy lies within 4 error bars, and with one shot per setting the error bars agree
+    # with the jackknife's within 30% (20 blocks: ~16% noise on each), the median's error being
+    # sqrt(pi/2) times that of the mean (asymptotic efficiency of the median, a fact of the trade).
+    n = 6
+    model = tfim_model(n)
+    _, psi = exact.ground_state(model.hamiltonian)
+    shadow = make_shadow(psi, LocalEnsemble(n), 8000, seed=17)
+    ref = reference_dataset(model, psi)
+    other = estimate(shadow, model, [], method=method, correlations=False, mutual_information=False)
+    jack = estimate(shadow, model, [], correlations=False, mutual_information=False)
+    assert other.attrs["error_method"] == method
+    assert within(other.energy, other.energy_err, ref.energy)[0]
+    factor = np.sqrt(np.pi / 2) if method == "median-of-means" else 1.0
+    assert float(other.energy_err) == pytest.approx(factor * float(jack.energy_err), rel=0.3)
