@@ -358,6 +358,16 @@ def _reciprocal_points(model):
     return q, np.exp(1j * q @ lat.positions.T)
 
 
+def structure_factor(corr: np.ndarray, phase: np.ndarray) -> np.ndarray:
+    """S(q) = (1/n) sum_ab e^(i q.(r_a - r_b)) <s^x_a s^x_b> per axis x, with <s^x_a s^x_a> = 1.
+
+    ``corr`` (3, 3, n, n) with NaN on the diagonal, ``phase`` (n_q, n) = e^(i q.r).
+    """
+    n = corr.shape[-1]
+    same_axis = np.stack([np.nan_to_num(corr[a, a]) + np.eye(n) for a in range(3)])
+    return np.real(np.einsum("qa,xab,qb->xq", phase, same_axis, phase.conj())) / n
+
+
 def _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near_pairs, method, reciprocal,
              correlations, mutual_information, has_squared, multi, lam, has_energy, calibrated):
     blocks = dict(sums.data)
@@ -390,11 +400,7 @@ def _dataset(shadow, model, sums, subsystems, qubits_of, n, n_sites, local, near
                 prod = (np.outer(total, total) - s.get("mag_within", s["corr"])) / pairs
                 out["connected_correlation"] = corr - prod.reshape(3, n, 3, n).transpose(0, 2, 1, 3)
                 if reciprocal is not None:
-                    # S(q) = (1/n) sum_ab e^(i q.(r_a - r_b)) <s^a_a s^a_b>, with <s^a_a s^a_a> = 1
-                    phase = reciprocal[1]
-                    same_axis = np.stack([np.nan_to_num(corr[a, a]) + np.eye(n) for a in range(3)])
-                    out["structure_factor"] = np.real(
-                        np.einsum("qa,xab,qb->xq", phase, same_axis, phase.conj())) / n
+                    out["structure_factor"] = structure_factor(corr, reciprocal[1])
         if "energy" in s:
             out["energy"] = s["energy"] / count
             out["energy_density"] = s["density"] / count

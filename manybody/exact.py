@@ -86,12 +86,15 @@ def evolve(ham: PauliExpansion, psi0: np.ndarray, times) -> np.ndarray:
     return out
 
 
+#: one-qubit states by letter: 0, 1 (Z basis), + and - (X basis)
+SINGLE_QUBIT_STATES = {"0": np.array([1, 0], dtype=complex), "1": np.array([0, 1], dtype=complex),
+                       "+": np.array([1, 1], dtype=complex) / np.sqrt(2),
+                       "-": np.array([1, -1], dtype=complex) / np.sqrt(2)}
+
+
 def product_state(letters: str) -> np.ndarray:
-    """A product state from one letter per qubit: 0, 1 (Z basis), + and - (X basis)."""
-    single = {"0": np.array([1, 0], dtype=complex), "1": np.array([0, 1], dtype=complex),
-              "+": np.array([1, 1], dtype=complex) / np.sqrt(2),
-              "-": np.array([1, -1], dtype=complex) / np.sqrt(2)}
-    return reduce(np.kron, [single[c] for c in letters])
+    """A product state from one letter per qubit (see SINGLE_QUBIT_STATES)."""
+    return reduce(np.kron, [SINGLE_QUBIT_STATES[c] for c in letters])
 
 
 # ------------------------------------------------------------ matrix products

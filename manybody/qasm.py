@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import os
 
-
 from .clifford import clifford_table
 from .ensembles import BASIS_LETTERS, Settings
+from .files import atomic_path
 
 _STIM_TO_QASM = {"H": "h", "S": "s", "S_DAG": "sdg", "X": "x", "Y": "y", "Z": "z", "CX": "cx"}
 
@@ -68,9 +68,7 @@ def write_qasm_files(ensemble, settings: Settings, folder, progress=None) -> int
     os.makedirs(folder, exist_ok=True)
     indices = range(len(settings))
     for k in (progress(indices) if progress else indices):
-        path = os.path.join(folder, f"setting_{int(settings.ids[k])}.qasm")
-        tmp = path + ".tmp"
-        with open(tmp, "w") as fh:
-            fh.write(setting_qasm(ensemble, settings, k))
-        os.replace(tmp, path)
+        with atomic_path(os.path.join(folder, f"setting_{int(settings.ids[k])}.qasm")) as tmp:
+            with open(tmp, "w") as fh:
+                fh.write(setting_qasm(ensemble, settings, k))
     return len(settings)

@@ -8,7 +8,7 @@ import xarray as xr
 from hamiltonians.pauli import PauliExpansion
 
 from . import __version__, exact
-from .estimate import AXES, _term_table
+from .estimate import AXES, _reciprocal_points, _term_table, structure_factor
 
 
 def _pauli(n, letters_at) -> PauliExpansion:
@@ -54,15 +54,11 @@ def reference_dataset(model, psi: np.ndarray, subsystems=(), label: dict | None 
                 pair = exact.purity(exact.reduced_density_matrix(psi, [qa, qb]))
                 mi[qa, qb] = mi[qb, qa] = -np.log(single[qa]) - np.log(single[qb]) + np.log(pair)
         data["mutual_information"] = (("site_a", "site_b"), mi)
-        from .estimate import _reciprocal_points
-
         reciprocal = _reciprocal_points(model)
         if reciprocal is not None:
             q, phase = reciprocal
-            same_axis = np.stack([np.nan_to_num(corr[a, a]) + np.eye(n) for a in range(3)])
             coords.update(q=np.arange(len(q)), qx=("q", q[:, 0]), qy=("q", q[:, 1]))
-            data["structure_factor"] = (("axis", "q"), np.real(
-                np.einsum("qa,xab,qb->xq", phase, same_axis, phase.conj())) / n)
+            data["structure_factor"] = (("axis", "q"), structure_factor(corr, phase))
     if subsystems:
         qubit_site = np.asarray(model.qubit_site)
         purity = np.array([exact.purity(exact.reduced_density_matrix(

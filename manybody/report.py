@@ -18,6 +18,8 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import xarray as xr  # noqa: E402
 
+from .files import atomic_path  # noqa: E402
+
 SEQUENTIAL = "viridis"
 DIVERGING = "PuOr_r"
 
@@ -225,8 +227,8 @@ def write_report(results: xr.Dataset, out_dir, reference: xr.Dataset | None = No
     if "mutual_information" in results:
         save(mutual_information_map(results), "mutual_information.png")
     path = os.path.join(out_dir, "summary.txt")
-    with open(path + ".tmp", "w") as fh:
-        fh.write(summary_table(results, reference) + "\n")
-    os.replace(path + ".tmp", path)
+    with atomic_path(path) as tmp:
+        with open(tmp, "w") as fh:
+            fh.write(summary_table(results, reference) + "\n")
     written.append(path)
     return written

@@ -2,27 +2,16 @@
 
 from __future__ import annotations
 
-import os
-import tempfile
-
 import numpy as np
 import xarray as xr
+
+from .files import atomic_path
 
 
 def write_dataset(ds: xr.Dataset, path) -> None:
     """netCDF-4 (h5netcdf) through a temporary file and a rename: nothing half-written."""
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    os.makedirs(folder, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".nc", dir=folder)
-    os.close(fd)
-    try:
+    with atomic_path(path, ".nc") as tmp:
         ds.to_netcdf(tmp, engine="h5netcdf")
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.remove(tmp)
-        raise
 
 
 def combine_series(datasets, labels) -> xr.Dataset:

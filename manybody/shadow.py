@@ -34,7 +34,6 @@ from dataclasses import dataclass, field, replace
 import datetime as _dt
 import json
 import os
-import tempfile
 from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
@@ -43,6 +42,7 @@ import xarray as xr
 from . import __version__
 from .ensembles import GlobalEnsemble, LocalEnsemble, Settings, ShallowEnsemble
 from .errors import InputError
+from .files import settle, temporary_beside
 
 SCHEMA_VERSION = 1
 SETTINGS_KIND = "manybody settings"
@@ -182,10 +182,7 @@ class ShadowWriter:
     def __enter__(self):
         import h5netcdf
 
-        folder = os.path.dirname(os.path.abspath(self.path))
-        os.makedirs(folder, exist_ok=True)
-        fd, self._tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".nc", dir=folder)
-        os.close(fd)
+        self._tmp = temporary_beside(self.path, ".nc")
         self._file = h5netcdf.File(self._tmp, "w")
         self._pool = ThreadPoolExecutor(max_workers=1)  # h5py releases the GIL while compressing
         self._pending = []
@@ -265,10 +262,7 @@ class ShadowWriter:
         finally:
             self._pool.shutdown(wait=True)
             self._file.close()
-            if ok:
-                os.replace(self._tmp, self.path)
-            elif os.path.exists(self._tmp):
-                os.remove(self._tmp)
+            settle(self._tmp, self.path, keep=ok)
         if exc_type is None and not self._finished:
             raise RuntimeError("ShadowWriter closed without finish(): nothing was written")
         return False

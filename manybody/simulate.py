@@ -109,8 +109,7 @@ def prepare_states(model, state: str, times, backend: str, bond_dim: int = 128):
         else:
             import quimb.tensor as qtn
 
-            single = {"0": [1, 0], "1": [0, 1], "+": [2**-0.5, 2**-0.5], "-": [2**-0.5, -(2**-0.5)]}
-            psi = qtn.MPS_product_state([np.array(single[c], dtype=complex) for c in letters])
+            psi = qtn.MPS_product_state([exact.SINGLE_QUBIT_STATES[c] for c in letters])
     if times is None:
         return [(None, psi, info)]
     if backend == "dense":

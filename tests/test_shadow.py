@@ -86,3 +86,18 @@ def test_bad_files(tmp_path):
         read_shadow(future)
     with pytest.raises(InputError, match="no such file"):
         read_shadow(tmp_path / "absent.nc")
+
+
+def test_atomic_path_leaves_nothing_on_failure(tmp_path):
+    from manybody.files import atomic_path
+
+    target = tmp_path / "out.txt"
+    target.write_text("old")
+    with pytest.raises(ValueError):
+        with atomic_path(target) as tmp:
+            open(tmp, "w").write("half")
+            raise ValueError("interrupted")
+    assert target.read_text() == "old" and os.listdir(tmp_path) == ["out.txt"]
+    with atomic_path(target) as tmp:
+        open(tmp, "w").write("new")
+    assert target.read_text() == "new" and os.listdir(tmp_path) == ["out.txt"]
