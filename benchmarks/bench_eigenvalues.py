@@ -13,7 +13,7 @@ import time
 
 import numpy as np
 
-from manybody.ensembles import ShallowEnsemble
+from manybody.measure.ensembles import ShallowEnsemble
 
 N, REACH = 128, 8
 

@@ -28,13 +28,19 @@ import numpy as np
 
 warnings.filterwarnings("ignore")
 
-from manybody.clifford import clifford_table  # noqa: E402
-from manybody.ensembles import LocalEnsemble, ShallowEnsemble  # noqa: E402
-from manybody.estimate import estimate  # noqa: E402
-from manybody.estimators import (histogram_index, histogram_pair_sum, local_columns, pair_count_sum,  # noqa: E402
-                                 site_factor_matrix, words)
-from manybody.propagation import snapshot_values  # noqa: E402
-from manybody.shadow import Shadow, ShadowWriter  # noqa: E402
+from manybody.estimation.driver import estimate  # noqa: E402
+from manybody.estimation.kernels import (  # noqa: E402
+    histogram_index,
+    histogram_pair_sum,
+    local_columns,
+    pair_count_sum,
+    site_factor_matrix,
+    words,
+)
+from manybody.io.shadow import Shadow, ShadowWriter  # noqa: E402
+from manybody.measure.clifford import clifford_table  # noqa: E402
+from manybody.measure.ensembles import LocalEnsemble, ShallowEnsemble  # noqa: E402
+from manybody.measure.propagation import snapshot_values  # noqa: E402
 
 
 def random_shadow(ens, n_snapshots, rng):
@@ -155,7 +161,7 @@ def main():
                                    np.ones(stop - start, np.int64))
                     out.finish(Shadow(ensemble=ens, settings=settings, qubit_site=np.arange(16)))
                 # VmHWM of the child itself (ru_maxrss would carry the parent's size across fork)
-                code = ("import sys; from manybody.cli import main; main(['estimate', sys.argv[1], "
+                code = ("import sys; from manybody.cli.parser import main; main(['estimate', sys.argv[1], "
                         "'--subsystems', '0-3', '-o', sys.argv[2]]); "
                         "print([l for l in open('/proc/self/status') if l.startswith('VmHWM')][0].split()[1])")
                 out = subprocess.run([sys.executable, "-c", code, path, os.path.join(tmp, "r.nc")],

@@ -78,7 +78,7 @@ def main():
         write_records(path, rows, np.random.default_rng(0))
         size = os.path.getsize(path) / 2**20
         # VmHWM of the child itself (ru_maxrss would carry the parent's size across fork)
-        code = ("import sys; from manybody.cli import main; main(['ingest', sys.argv[1], '-o', sys.argv[2]]); "
+        code = ("import sys; from manybody.cli.parser import main; main(['ingest', sys.argv[1], '-o', sys.argv[2]]); "
                 "print([l for l in open('/proc/self/status') if l.startswith('VmHWM')][0].split()[1])")
         t = time.perf_counter()
         out = subprocess.run([sys.executable, "-c", code, path, os.path.join(tmp, "s.nc")],

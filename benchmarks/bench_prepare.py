@@ -15,9 +15,9 @@ import time
 import stim
 
 from hamiltonians.spec import parse_spec
-from manybody.prepare import prepare_settings
-from manybody.qasm import setting_ops, write_qasm_files
-from manybody.shadow import write_shadow
+from manybody.io.shadow import write_shadow
+from manybody.measure.prepare import prepare_settings
+from manybody.measure.qasm import setting_ops, write_qasm_files
 
 SPEC = '[lattice]\nkind = "chain"\nsize = [32]\n[model]\nkind = "heisenberg"\n'
 STIM_NAME = {"h": "H", "s": "S", "sdg": "S_DAG", "x": "X", "y": "Y", "z": "Z", "cx": "CX"}

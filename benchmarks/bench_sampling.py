@@ -22,11 +22,11 @@ warnings.filterwarnings("ignore")
 
 from hamiltonians import build_lattice  # noqa: E402
 from hamiltonians.models import heisenberg, tfim  # noqa: E402
-from manybody import exact  # noqa: E402
-from manybody.clifford import clifford_table  # noqa: E402
-from manybody.ensembles import LocalEnsemble, ShallowEnsemble  # noqa: E402
-from manybody.sampling import sample_dense, sample_mps  # noqa: E402
-from manybody.statevector import BASIS_ROTATIONS  # noqa: E402
+from manybody.measure.clifford import clifford_table  # noqa: E402
+from manybody.measure.ensembles import LocalEnsemble, ShallowEnsemble  # noqa: E402
+from manybody.references import exact
+from manybody.simulation.sampling import sample_dense, sample_mps  # noqa: E402
+from manybody.simulation.statevector import BASIS_ROTATIONS  # noqa: E402
 
 
 def quimb_loop(mps, ensemble, settings, count, rng):

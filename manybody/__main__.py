@@ -1,5 +1,5 @@
 import sys
 
-from .cli import main
+from manybody.cli.parser import main
 
 sys.exit(main())

@@ -16,16 +16,14 @@ from __future__ import annotations
 import os
 import time
 
-
 from hamiltonians.spec import load_model
-
-from .calibration import Calibration
-from .estimate import estimate, parse_subsystems
-from .reference import reference_dataset
-from .report import summary_table, write_report
-from .results import combine_series, write_dataset
-from .shadow import read_shadow
-from .simulate import Noise, prepare_states, simulate
+from manybody.estimation.calibration import Calibration
+from manybody.estimation.driver import estimate, parse_subsystems
+from manybody.io.results import combine_series, write_dataset
+from manybody.io.shadow import read_shadow
+from manybody.references.dataset import reference_dataset
+from manybody.reporting.figures import summary_table, write_report
+from manybody.simulation.experiment import Noise, prepare_states, simulate
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 SPECS = os.path.join(os.path.dirname(HERE), "demo_runs")

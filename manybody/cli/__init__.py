@@ -1,0 +1,5 @@
+"""The ``manybody`` command line: parsing (parser.py) and the commands (commands.py)."""
+
+from manybody.cli.parser import main
+
+__all__ = ["main"]

@@ -1,0 +1,245 @@
+"""The ``manybody`` command: a thin shell that parses, calls and prints.
+
+Bad input (a spec, a file, an option) ends with one sentence on stderr and
+exit status 2; ``--debug`` shows the traceback instead.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from hamiltonians.spec import SpecError
+from manybody import __version__
+from manybody.cli.commands import (
+    cmd_demo,
+    cmd_estimate,
+    cmd_ingest,
+    cmd_model,
+    cmd_plan,
+    cmd_prepare,
+    cmd_reference,
+    cmd_report,
+    cmd_simulate,
+)
+from manybody.errors import InputError
+
+EXIT_BAD_INPUT = 2
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports usage mistakes as one sentence with exit status 2."""
+
+    def error(self, message):
+        raise InputError(f"{self.prog}: {message} (see '{self.prog} --help')")
+
+
+def _formatter(prog):
+    return argparse.RawDescriptionHelpFormatter(prog, max_help_position=32)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="manybody",
+        formatter_class=_formatter,
+        description=(
+            "Physics from randomized measurements (classical shadows) of many-body states:\n"
+            "lattice models, measurement planning, estimation with error bars, exact references."),
+        epilog="Start with 'manybody demo', or 'manybody model SPEC.toml --exact' for a model summary.",
+    )
+    parser.add_argument("--version", action="version", version=f"manybody {__version__}")
+    parser.add_argument("--debug", action="store_true", help="show a traceback on errors")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    p = sub.add_parser(
+        "model", formatter_class=_formatter, help="summarise a model spec (sites, bonds, Pauli terms)",
+        description="Summarise a lattice model: sites, bonds, Pauli terms and their one-norm.",
+        epilog="example:\n  manybody model demo_runs/tfim_chain.toml --exact")
+    p.add_argument("spec", metavar="SPEC.toml", help="model spec (TOML; see README)")
+    p.add_argument("--exact", action="store_true",
+                   help="also compute the ground-state energy: exact diagonalization up to "
+                        "20 qubits, DMRG for larger chains and ladders")
+    p.add_argument("--bond-dim", type=int, default=128, metavar="CHI",
+                   help="largest DMRG bond dimension (default 128)")
+    p.set_defaults(func=cmd_model)
+
+    p = sub.add_parser(
+        "plan", formatter_class=_formatter, help="snapshot budget per circuit depth for a target error",
+        description=(
+            "How many snapshots each depth needs so that the energy, the energy per site, the\n"
+            "correlations up to --distance and the purities of --subsystems reach a one-sigma\n"
+            "error EPS. Without --pilot the per-snapshot variances are the state-independent worst\n"
+            "cases; with a pilot shadow they use its estimated expectation values. Depth 0 is the\n"
+            "local ensemble; depth d > 0 are shallow circuits on the model's bonds."),
+        epilog=("examples:\n"
+                "  manybody plan demo_runs/tfim_chain.toml --error 0.05\n"
+                "  manybody plan demo_runs/tfim_chain.toml --error 0.02 --depths 0,1,2 --pilot gs.nc -o plan.nc"))
+    p.add_argument("spec", metavar="SPEC.toml", help="model spec")
+    p.add_argument("--error", type=float, required=True, metavar="EPS", help="target one-sigma error")
+    p.add_argument("--depths", default="0,1,2,3,4", metavar="D1,D2,...", help="candidate depths (default 0-4)")
+    p.add_argument("--distance", type=int, default=1, help="correlations up to this graph distance (default 1)")
+    p.add_argument("--subsystems", metavar="LIST", help="subsystems whose purities must reach EPS")
+    p.add_argument("--pilot", metavar="SHADOW.nc", help="pilot shadow: use its estimated expectation values")
+    p.add_argument("--shots", type=int, default=1, help="shots per setting (default 1)")
+    p.add_argument("-o", "--output", metavar="plan.nc", help="also write the table as a dataset")
+    p.set_defaults(func=cmd_plan)
+
+    p = sub.add_parser(
+        "prepare", formatter_class=_formatter, help="draw measurement settings (and export circuits)",
+        description=(
+            "Draw random measurement settings for a model and store them in a settings file.\n"
+            "local: a random X/Y/Z basis per qubit. shallow: DEPTH layers of random two-qubit\n"
+            "Cliffords on the lattice bonds (brickwork on a chain), then random bases. global: one\n"
+            "random Clifford on all qubits. --qasm writes one OpenQASM 3 file per setting,\n"
+            "setting_<id>.qasm, with the rotations to the measured bases and the measurements."),
+        epilog=("examples:\n"
+                "  manybody prepare demo_runs/tfim_chain.toml --ensemble local --settings 500 --seed 7 -o settings.nc\n"
+                "  manybody prepare demo_runs/tfim_chain.toml --ensemble shallow --depth 2 --settings 200 \\\n"
+                "      -o settings.nc --qasm circuits/"))
+    p.add_argument("spec", metavar="SPEC.toml", help="model spec (sets the qubits and the coupling graph)")
+    p.add_argument("--ensemble", choices=("local", "shallow", "global"), default="local",
+                   help="measurement ensemble (default local)")
+    p.add_argument("--depth", type=int, default=1, help="layers of two-qubit gates for --ensemble shallow (default 1)")
+    p.add_argument("--settings", type=int, required=True, metavar="K", help="number of settings to draw")
+    p.add_argument("--seed", type=int, default=None, help="random seed (default: fresh, recorded in the file)")
+    p.add_argument("-o", "--output", required=True, metavar="settings.nc", help="settings file to write")
+    p.add_argument("--qasm", metavar="DIR", help="also write one OpenQASM 3 file per setting into DIR")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_prepare)
+
+    p = sub.add_parser(
+        "ingest", formatter_class=_formatter, help="turn measurement records (CSV) into a shadow file",
+        description=(
+            "Read measurement records and write a shadow file. One row per shot, or per distinct\n"
+            "outcome with a count column; a header is required:\n"
+            "  local ensemble:     setting,basis,outcome[,count]   e.g. 17,XZZYX,01101,3\n"
+            "  shallow and global: setting,outcome[,count]         (needs --settings)\n"
+            "Character q of basis and outcome belongs to qubit q; outcome 0 is the +1 eigenvalue."),
+        epilog=("examples:\n"
+                "  manybody ingest run7.csv --settings settings.nc --model spec.toml --label time=0.5 -o t05.nc\n"
+                "  manybody ingest local_run.csv -o shadow.nc"))
+    p.add_argument("records", metavar="RECORDS.csv", help="measurement records")
+    p.add_argument("--settings", metavar="settings.nc", help="settings file from 'manybody prepare'")
+    p.add_argument("--model", metavar="SPEC.toml", help="model spec to store with the shadow")
+    p.add_argument("--label", action="append", metavar="KEY=VALUE",
+                   help="label of this shadow, e.g. time=0.5 (repeatable)")
+    p.add_argument("-o", "--output", required=True, metavar="shadow.nc", help="shadow file to write")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_ingest)
+
+    p = sub.add_parser(
+        "simulate", formatter_class=_formatter, help="a synthetic experiment: snapshots of a simulated state",
+        description=(
+            "Simulate randomized measurements of a state of the model and write shadow files in\n"
+            "the same format as 'ingest'. STATE is 'ground' (exact diagonalization or DMRG), a\n"
+            "product state by name (neel, zero, one, plus, minus) or by one letter per qubit from\n"
+            "0, 1, +, -. With --times the state is evolved under the model's Hamiltonian (a\n"
+            "quench) and OUT is a folder with one shadow per time (shadow_t<time>.nc). The dense\n"
+            f"backend is used up to {14} qubits, matrix product states (quimb) beyond."),
+        epilog=("examples:\n"
+                "  manybody simulate demo_runs/tfim_chain.toml --state ground --snapshots 20000 --seed 1 -o gs.nc\n"
+                "  manybody simulate demo_runs/tfim_chain.toml --state neel --times 0,0.5,1,2 \\\n"
+                "      --snapshots 10000 --readout-error 0.02 -o quench/"))
+    p.add_argument("spec", metavar="SPEC.toml", help="model spec")
+    p.add_argument("--state", required=True, help="ground, neel, zero, one, plus, minus, or letters 0 1 + -")
+    p.add_argument("--snapshots", type=int, required=True, metavar="N", help="snapshots per shadow")
+    p.add_argument("--ensemble", choices=("local", "shallow", "global"), default="local",
+                   help="measurement ensemble (default local)")
+    p.add_argument("--depth", type=int, default=1, help="layers for --ensemble shallow (default 1)")
+    p.add_argument("--shots", type=int, default=1, metavar="S",
+                   help="shots per setting (default 1: every snapshot its own setting)")
+    p.add_argument("--times", metavar="T1,T2,...", help="quench times (in units of 1/J of the model)")
+    p.add_argument("--readout-error", metavar="P or P01,P10", default="0",
+                   help="readout bit-flip probability, or the pair p(0 read as 1),p(1 read as 0)")
+    p.add_argument("--depolarizing", type=float, default=0.0, metavar="P",
+                   help="single-qubit depolarizing probability just before the measurement")
+    p.add_argument("--backend", choices=("auto", "dense", "mps"), default="auto", help="state representation")
+    p.add_argument("--bond-dim", type=int, default=128, metavar="CHI", help="largest MPS bond dimension")
+    p.add_argument("--seed", type=int, default=None, help="random seed (default: fresh, recorded in the files)")
+    p.add_argument("-o", "--output", required=True, metavar="OUT", help="shadow file, or folder with --times")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_simulate)
+
+    p = sub.add_parser(
+        "estimate", formatter_class=_formatter, help="estimates with error bars from shadow files",
+        description=(
+            "Estimate energy, energy density, energy variance, magnetization, correlation maps,\n"
+            "purities, Renyi-2 entropies and the mutual-information map, each with a one-sigma\n"
+            "error bar (delete-one-block jackknife over blocks of whole settings by default).\n"
+            "Several shadows (a quench series) give one dataset with a time (or label) dimension.\n"
+            "LIST: subsystems separated by ';', each an inclusive range a-b or a list a,b,c of sites;\n"
+            "'profile' gives the entropy profile 0;0-1;0-2;... up to half the system."),
+        epilog=("examples:\n"
+                "  manybody estimate gs.nc --subsystems '0-5;0;0-1' -o results.nc\n"
+                "  manybody estimate quench/*.nc --subsystems 0-5 --calibration cal.nc -o series.nc"))
+    p.add_argument("shadows", nargs="+", metavar="SHADOW.nc", help="shadow files")
+    p.add_argument("--model", metavar="SPEC.toml", help="model spec (default: the one stored in the shadow)")
+    p.add_argument("--subsystems", metavar="LIST", help="subsystems for purities and Renyi-2 entropies")
+    p.add_argument("--calibration", metavar="CAL.nc", help="shadow of |0...0> for robust (noise-aware) estimates")
+    p.add_argument("--errors", choices=("jackknife", "median-of-means", "analytic"), default="jackknife",
+                   help="error-bar method (default jackknife; the others apply to plain means)")
+    p.add_argument("--blocks", type=int, default=20, help="jackknife blocks of settings (default 20)")
+    p.add_argument("--no-mutual-information", action="store_true", help="skip the mutual-information map")
+    p.add_argument("-o", "--output", required=True, metavar="results.nc", help="results dataset to write")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_estimate)
+
+    p = sub.add_parser(
+        "reference", formatter_class=_formatter, help="exact values in the results schema",
+        description=("Exact values of the same quantities for a state of the model (dense, up to 20\n"
+                     "qubits), so that results - exact is one xarray expression."),
+        epilog="example:\n  manybody reference demo_runs/tfim_chain.toml --state ground --subsystems '0-5' -o exact.nc")
+    p.add_argument("spec", metavar="SPEC.toml", help="model spec")
+    p.add_argument("--state", required=True, help="ground, neel, zero, one, plus, minus, or letters 0 1 + -")
+    p.add_argument("--times", metavar="T1,T2,...", help="quench times")
+    p.add_argument("--subsystems", metavar="LIST", help="subsystems for purities and Renyi-2 entropies")
+    p.add_argument("-o", "--output", required=True, metavar="exact.nc", help="dataset to write")
+    p.set_defaults(func=cmd_reference)
+
+    p = sub.add_parser(
+        "report", formatter_class=_formatter, help="figures (PNG) and a summary table from results",
+        description=("Figures a group puts on a slide (correlation maps, energy density, Renyi-2 profile,\n"
+                     "S2(t) and correlations versus time for a series, mutual information) and summary.txt\n"
+                     "with error bars; with --reference the exact values are overlaid and listed."),
+        epilog="example:\n  manybody report results.nc --reference exact.nc -o report/")
+    p.add_argument("results", metavar="results.nc", help="dataset from 'manybody estimate'")
+    p.add_argument("--reference", metavar="exact.nc", help="dataset from 'manybody reference'")
+    p.add_argument("-o", "--output", required=True, metavar="DIR", help="folder for the figures and summary.txt")
+    p.set_defaults(func=cmd_report)
+
+    p = sub.add_parser(
+        "demo", formatter_class=_formatter, help="run the demo scenario end to end",
+        description=("Run the invented demo scenario end to end: an invented lab's quench of a 12-site\n"
+                     "Ising chain (with readout errors and a calibration run) and the ground state of a\n"
+                     "3 x 3 Heisenberg patch; simulate, estimate, compare with exact references, report."),
+        epilog="example:\n  manybody demo -o demo_out/")
+    p.add_argument("-o", "--output", default="demo_runs/out", metavar="DIR", help="output folder (default demo_runs/out)")
+    p.add_argument("--quick", action="store_true", help="fewer snapshots and times (about 20 s)")
+    p.add_argument("--seed", type=int, default=2026, help="random seed (default 2026)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_demo)
+    return parser
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    debug = "--debug" in argv
+    try:
+        args = parser.parse_args(argv)
+        if not getattr(args, "func", None):
+            parser.print_help()
+            return 0
+        return int(args.func(args) or 0)
+    except (InputError, SpecError) as exc:
+        if debug:
+            raise
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

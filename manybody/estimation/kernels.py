@@ -1,0 +1,182 @@
+"""Estimator kernels: arrays in, arrays out, snapshots first (DESIGN.md section 4).
+
+Single-snapshot Pauli estimates are o_P = <b|U P U^dagger|b> / lambda_P
+(Huang, Kueng, Preskill, Nat. Phys. 16, 1050 (2020)). Every kernel here
+returns per-snapshot values or partial sums over a chunk of snapshots, so
+that estimators are "sum over chunks, then combine" (error bars come from
+per-block sums).
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+
+from manybody.measure.ensembles import BASIS_PAULI
+
+#: axis index (X, Y, Z) -> one-qubit Pauli code (I 0, X 1, Z 2, Y 3)
+AXIS_CODES = BASIS_PAULI
+
+
+def local_columns(basis: np.ndarray, bits: np.ndarray, inv_lambda, dtype=np.float64) -> np.ndarray:
+    """e[s, a, q] = [basis_q(s) = a] (-1)^(b_q(s)) / lambda_q for the local ensemble: (N, 3, n).
+
+    With lambda_q = 1/3 these are the one-site estimators 3 [basis = a] (-1)^b;
+    calibrated (robust) shadows pass one noisy lambda per qubit. With
+    dtype float32 the values +-3 and their products are exact.
+    """
+    count, n = bits.shape
+    inv = np.broadcast_to(np.asarray(inv_lambda, dtype=dtype), (n,))
+    out = np.zeros((count, 3 * n), dtype=dtype)
+    # one scatter: entry (s, basis * n + q) = (-1)^b / lambda_q, all others zero
+    index = basis.astype(np.intp) * n + np.arange(n, dtype=np.intp)
+    index += (3 * n) * np.arange(count, dtype=np.intp)[:, None]
+    out.ravel()[index] = (1 - 2 * bits.astype(dtype)) * inv
+    return out.reshape(count, 3, n)
+
+
+def local_products(columns: np.ndarray, supports: np.ndarray, axes: np.ndarray) -> np.ndarray:
+    """Products of one-site columns: for term t, prod_k e[:, axes[t, k], supports[t, k]]: (N, T).
+
+    Terms of one weight at a time: ``supports`` and ``axes`` are (T, w).
+    On disjoint sites the local estimator factorizes exactly (lambda_P is a
+    product over sites and so is the snapshot value).
+    """
+    flat = columns.reshape(len(columns), -1)
+    n = columns.shape[2]
+    idx = axes * n + supports
+    out = flat[:, idx[:, 0]].copy()
+    for k in range(1, idx.shape[1]):
+        out *= flat[:, idx[:, k]]
+    return out
+
+
+def pauli_string_codes(strings_x: np.ndarray, strings_z: np.ndarray) -> np.ndarray:
+    """One-qubit codes (I 0, X 1, Z 2, Y 3) from x and z bits: (T, n)."""
+    return strings_x.astype(np.uint8) + 2 * strings_z.astype(np.uint8)
+
+
+def paulis_on(qubits, n_qubits: int) -> np.ndarray:
+    """All 4^|A| Pauli strings supported in ``qubits``, as codes (4^|A|, n); row 0 is the identity."""
+    qubits = list(qubits)
+    rows = np.zeros((4 ** len(qubits), n_qubits), dtype=np.uint8)
+    for r, letters in enumerate(itertools.product(range(4), repeat=len(qubits))):
+        rows[r, qubits] = letters
+    return rows
+
+
+# --------------------------------------------------------------- purity
+def site_factor_matrix(inv_lambda: float = 3.0) -> np.ndarray:
+    """6 x 6 factor tr(rho_i rho_j) of one site between (basis, outcome) words w = 2 basis + bit.
+
+    Per site, tr(rho_i rho_j) = (1/2) sum_P v_i(P) v_j(P) with v(I) = 1 and
+    v(P) = [basis = P] (-1)^b / lambda: (1 + 1/lambda^2)/2 for the same basis
+    and outcome, (1 - 1/lambda^2)/2 for the same basis and opposite outcomes,
+    1/2 for different bases. With lambda = 1/3: 5, -4, 1/2 (Elben et al.,
+    PRL 120, 050406 (2018); Huang, Kueng, Preskill 2020).
+    """
+    s = inv_lambda**2
+    f = np.full((6, 6), 0.5)
+    for b in range(3):
+        f[2 * b, 2 * b] = f[2 * b + 1, 2 * b + 1] = (1 + s) / 2
+        f[2 * b, 2 * b + 1] = f[2 * b + 1, 2 * b] = (1 - s) / 2
+    return f
+
+
+def words(basis: np.ndarray, bits: np.ndarray) -> np.ndarray:
+    """(basis, outcome) word 2 basis + bit per snapshot and qubit."""
+    return 2 * basis.astype(np.int64) + bits
+
+
+def histogram_index(word_rows: np.ndarray) -> np.ndarray:
+    """Base-6 index of the words on A for every snapshot (first qubit most significant)."""
+    k = word_rows.shape[1]
+    return word_rows @ (6 ** np.arange(k - 1, -1, -1, dtype=np.int64))
+
+
+def histogram_pair_sum(hist: np.ndarray, factors) -> float:
+    """sum_{i,j} prod_q F_q(w_iq, w_jq) from the histogram of words (all pairs, i = j included).
+
+    The histogram tensor (6,)*k is multiplied by F_q on every axis, then
+    contracted with itself: cost O(k 6^(k+1)) (DESIGN.md section 4).
+    """
+    k = len(factors)
+    t = hist.reshape((6,) * k) if k else hist.reshape(())
+    g = t
+    for axis, f in enumerate(factors):
+        g = np.moveaxis(np.tensordot(f, g, axes=([1], [axis])), 0, axis)
+    return float(np.sum(g * t))
+
+
+def pair_count_sum(word_rows: np.ndarray, inv_lambda, chunk: int = 2048, exclude=None, blocks=None,
+                   n_blocks: int = 1):
+    """sum_{i != j} prod_q F(w_iq, w_jq) by pair counts (cost O(N^2 |A|), chunked).
+
+    For each pair, a = number of sites with the same basis and outcome, b =
+    same basis and opposite outcomes, c = different bases; with one-hot
+    matrices these counts are matrix products. The factor is
+    prod over sites of (1+s)/2, (1-s)/2 or 1/2 with s = 1/lambda_q^2, done
+    in logarithms per site class when lambda is the same on every site.
+    ``exclude`` (N,) labels: pairs with equal labels are left out (same setting).
+    With ``blocks`` (N,) labels, returns the (n_blocks, n_blocks) matrix of
+    sums over pairs (i in block b1, j in block b2) instead of the total.
+    """
+    n_snap, k = word_rows.shape
+    inv = np.broadcast_to(np.asarray(inv_lambda, dtype=float), (k,))
+    s = inv**2
+    same_out = np.zeros((n_snap, 6 * k))
+    same_out[np.arange(n_snap)[:, None], 6 * np.arange(k) + word_rows] = 1.0
+    basis_onehot = np.zeros((n_snap, 3 * k))
+    basis_onehot[np.arange(n_snap)[:, None], 3 * np.arange(k) + word_rows // 2] = 1.0
+    total = 0.0
+    by_block = np.zeros((n_blocks, n_blocks))
+    onehot = None
+    if blocks is not None:
+        onehot = np.zeros((n_snap, n_blocks))
+        onehot[np.arange(n_snap), blocks] = 1.0
+    uniform = np.allclose(s, s[0])
+    for start in range(0, n_snap, chunk):
+        sl = slice(start, start + chunk)
+        if uniform:
+            a = same_out[sl] @ same_out.T  # same basis and same outcome
+            same_basis = basis_onehot[sl] @ basis_onehot.T
+            b = same_basis - a
+            c = k - same_basis
+            term = ((1 + s[0]) / 2) ** a * ((1 - s[0]) / 2) ** b * 0.5**c
+        else:
+            term = np.ones((min(chunk, n_snap - start), n_snap))
+            for q in range(k):
+                wq = word_rows[:, q]
+                same_b = (wq[sl, None] // 2) == (wq[None, :] // 2)
+                same_o = wq[sl, None] == wq[None, :]
+                term *= np.where(same_o, (1 + s[q]) / 2, np.where(same_b, (1 - s[q]) / 2, 0.5))
+        rows = np.arange(start, min(start + chunk, n_snap))
+        term[np.arange(len(rows)), rows] = 0.0  # i = j
+        if exclude is not None:
+            term[exclude[rows][:, None] == exclude[None, :]] = 0.0
+        if onehot is not None:
+            by_block += onehot[rows].T @ (term @ onehot)
+        else:
+            total += float(term.sum())
+    return by_block if blocks is not None else total
+
+
+def setting_purity_estimate(bits_per_setting, qubits) -> float:
+    """Per-setting purity estimator, averaged over settings (Brydges et al., Science 364, 260 (2019)).
+
+    For one setting with shots s, s': P_U = 2^|A| sum_{s != s'} (-2)^(-D(s, s')) / (M (M - 1)),
+    D the Hamming distance on A; this unbiased form over distinct shots is
+    averaged over the settings. ``bits_per_setting`` is a list of (M, n) arrays.
+    """
+    k = len(qubits)
+    values = []
+    for bits in bits_per_setting:
+        m = len(bits)
+        if m < 2:
+            continue
+        b = bits[:, qubits].astype(float)
+        hamming = b @ (1 - b).T + (1 - b) @ b.T
+        weights = (-2.0) ** (-hamming)
+        values.append(2**k * (weights.sum() - m) / (m * (m - 1)))
+    return float(np.mean(values))

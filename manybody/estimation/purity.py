@@ -1,0 +1,162 @@
+"""Purities and the mutual-information map as per-block sums (DESIGN.md section 4).
+
+Local ensemble: histograms of (basis, outcome) words for small subsystems,
+pair counts for large ones, and for all site pairs at once the Gram matrix
+of one-hot words. Circuit ensembles: Pauli vectors. Pairs of snapshots from
+the same setting are left out (their within-setting sums are subtracted).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from manybody.errors import InputError
+from manybody.estimation.kernels import histogram_index, pair_count_sum, paulis_on, site_factor_matrix, words
+from manybody.measure.propagation import snapshot_values
+
+HISTOGRAM_MAX_SITES = 8
+PAULI_VECTOR_MAX_QUBITS = 6
+
+
+def purity_chunk(i, qs, local, lam, ens, sub, where, pos, bits, basis, onehot, sums, multi, per_setting_add,
+                  pair_words):
+    k = len(qs)
+    if local and k <= HISTOGRAM_MAX_SITES:
+        w = words(basis[:, qs], bits[:, qs])
+        idx = histogram_index(w)
+        part = np.zeros((onehot.shape[1], 6**k))
+        np.add.at(part, (np.argmax(onehot, axis=1), idx), 1.0)
+        sums.add_blocks(f"hist{i}", part)
+        if multi:
+            out_idx = bits[:, qs] @ (2 ** np.arange(k - 1, -1, -1))
+            o = np.zeros((len(pos), 2**k))
+            o[np.arange(len(pos)), out_idx] = 1.0
+            per_setting_add(f"oh{i}", pos, o)
+        else:
+            inv = lam.inv_local(ens.n_qubits)[qs]
+            diag = np.prod((1 + inv**2) / 2)  # tr(rho_i^A rho_i^A) of one snapshot
+            sums.add(f"hw{i}", onehot, np.full(len(pos), diag))
+    elif local:
+        pair_words[i].append((words(basis[:, qs], bits[:, qs]), pos, np.argmax(onehot, axis=1)))
+    else:
+        if len(qs) > PAULI_VECTOR_MAX_QUBITS:
+            raise InputError(f"purities of {len(qs)} qubits need the local ensemble; circuit ensembles take "
+                             f"subsystems of at most {PAULI_VECTOR_MAX_QUBITS} qubits")
+        codes = paulis_on(qs, ens.n_qubits)
+        v = np.ones((len(pos), len(codes)))
+        for r in range(1, len(codes)):
+            v[:, r] = snapshot_values(codes[r], ens, sub, where, bits) / lam.of(codes[r])
+        sums.add(f"pv{i}", onehot, v)
+        if multi:
+            per_setting_add(f"pv{i}", pos, v)
+        else:
+            sums.add(f"pw{i}", onehot, np.sum(v * v, axis=1))
+
+
+def outcome_within(hists, setting_block, n_blocks, k, inv):
+    """Within-setting pair sums of tr(rho_i rho_j) from per-setting outcome histograms (same bases)."""
+    out = np.zeros(n_blocks)
+    for b in range(n_blocks):
+        h = hists[setting_block == b]
+        g = h.reshape((-1,) + (2,) * k)
+        for q in range(k):
+            f2 = np.array([[(1 + inv[q] ** 2) / 2, (1 - inv[q] ** 2) / 2],
+                           [(1 - inv[q] ** 2) / 2, (1 + inv[q] ** 2) / 2]])
+            g = np.moveaxis(np.tensordot(f2, g, axes=([1], [q + 1])), 0, q + 1)
+        out[b] = np.sum(g.reshape(len(h), -1) * h)
+    return out
+
+
+def mi_within(joint, setting_block, n_blocks, n, inv):
+    """Within-setting pair sums for every site pair (off-diagonal) and every site (diagonal).
+
+    ``joint`` (K, 2n, 2n) holds per setting the counts of outcome pairs
+    (site a outcome u, site b outcome v); the bases are fixed within a setting.
+    """
+    out = np.zeros((n_blocks, n, n))
+    f2 = np.zeros((n, 2, 2))
+    for q in range(n):
+        s = inv[q] ** 2
+        f2[q] = [[(1 + s) / 2, (1 - s) / 2], [(1 - s) / 2, (1 + s) / 2]]
+    for b in range(n_blocks):
+        j = joint[setting_block == b].reshape(-1, n, 2, n, 2)
+        g = np.einsum("auv,savbw,bwx->saubx", f2, j, f2)
+        out[b] = np.einsum("saubx,saubx->ab", g, j)
+        single = np.einsum("sauau->sau", j)  # outcome counts of each site
+        out[b][np.diag_indices(n)] = np.einsum("sau,auv,sav->a", single, f2, single)
+    return out
+
+
+def pair_count_blocks(parts, qs, inv_local, n_blocks, multi):
+    """Block-by-block matrix of cross-setting pair sums for a large local subsystem."""
+    w = np.concatenate([p[0] for p in parts])
+    setting = np.concatenate([p[1] for p in parts])
+    block = np.concatenate([p[2] for p in parts])
+    return pair_count_sum(w, inv_local[qs], exclude=setting, blocks=block, n_blocks=n_blocks)
+
+
+def pair_count_jackknife(pair_count, blocks, qubits_of):
+    n_tot = blocks["n"].sum()
+    n2_tot = blocks["n2"].sum()
+    full, err = {}, {}
+    for name, mat in pair_count.items():
+        i = int(name[2:])
+        nb = len(mat)
+        total = mat.sum()
+        pairs = n_tot**2 - n2_tot
+        full[i] = total / pairs
+        loo = []
+        for b in range(nb):
+            sub = total - 2 * mat[b].sum() + mat[b, b]
+            nn = n_tot - blocks["n"][b]
+            pp = nn**2 - (n2_tot - blocks["n2"][b])
+            loo.append(sub / pp)
+        loo = np.array(loo)
+        err[i] = np.sqrt((nb - 1) / nb * np.sum((loo - loo.mean()) ** 2))
+    return full, err
+
+
+def mi_purities_paulis(s, n, near_pairs, pairs):
+    """Single-site (diagonal) and two-site purities from Pauli-vector sums, one shot per setting.
+
+    tr rho_ab^2 = (|V|^2 - sum_i |v_i|^2) / (4 pairs) with v_i over the 16 Paulis on (a, b):
+    |V|^2 = N^2 + sum M_a^2 + sum M_b^2 + sum C_ab^2 and sum_i |v_i|^2 = N + S_a + S_b + Q_ab,
+    M the one-site sums, C the two-site sums, S and Q the sums of squares.
+    """
+    count = s["n"]
+    mag = s["mag"]  # (3, n)
+    corr = s["corr"].reshape(3, n, 3, n).copy()
+    squares = s["corr_sq"].reshape(3, n, 3, n).copy()
+    if "near" in s:
+        for j, (a, b) in enumerate(near_pairs):
+            corr[:, a, :, b], corr[:, b, :, a] = s["near"][j], s["near"][j].T
+            squares[:, a, :, b], squares[:, b, :, a] = s["near_sq"][j], s["near_sq"][j].T
+    m2 = np.sum(mag**2, axis=0)  # (n,)
+    own = np.einsum("xaxa->a", s["corr"].reshape(3, n, 3, n))  # sum_i f_ia^2 over axes
+    vv = count**2 + m2[:, None] + m2[None, :] + np.einsum("xayb,xayb->ab", corr, corr)
+    ww = count + own[:, None] + own[None, :] + np.einsum("xayb->ab", squares)
+    out = (vv - ww) / (4 * pairs)
+    out[np.diag_indices(n)] = (count**2 + m2 - count - own) / (2 * pairs)
+    return out
+
+
+def mi_purities(s, n, inv, pairs, multi):
+    """Purities of every single site (diagonal) and site pair from the one-hot word histogram."""
+    h = s["mi_hist"].reshape(n, 6, n, 6)
+    f = np.array([site_factor_matrix(inv[q]) for q in range(n)])  # (n, 6, 6)
+    g = np.einsum("auv,avbw,bwx->aubx", f, h, f)
+    pair_sum = np.einsum("aubx,aubx->ab", g, h)
+    # diagonal blocks: H[a, u, a, u'] is diagonal, so the single-site sum is h_a F h_a
+    single = np.einsum("au,auv,av->a", np.einsum("auau->au", h), f, np.einsum("auau->au", h))
+    diag_each = (1 + inv**2) / 2
+    if "mi_within" in s:  # several shots per setting
+        within_pair = s["mi_within"]
+        within_single = np.diagonal(within_pair).copy()
+    else:  # one shot per setting: only i = j pairs
+        within_pair = s["n"] * np.outer(diag_each, diag_each)
+        within_single = s["n"] * diag_each
+    purity_pair = (pair_sum - within_pair) / pairs
+    purity_single = (single - within_single) / pairs
+    out = purity_pair.copy()
+    out[np.diag_indices(n)] = purity_single
+    return out

@@ -1,0 +1,74 @@
+"""OpenQASM 3 export of measurement settings (standard gates h, s, sdg, x, y, z, cx)."""
+
+from __future__ import annotations
+
+import os
+
+from manybody.io.files import atomic_path
+from manybody.measure.clifford import clifford_table
+from manybody.measure.ensembles import BASIS_LETTERS, Settings
+
+_STIM_TO_QASM = {"H": "h", "S": "s", "S_DAG": "sdg", "X": "x", "Y": "y", "Z": "z", "CX": "cx"}
+
+
+def _global_ops(tableau_x, tableau_z, tableau_sign):
+    """Gate list of an n-qubit Clifford tableau, synthesised by stim (Gaussian elimination)."""
+    import stim
+
+    n = tableau_x.shape[-1]
+
+    def pauli(x, z, s):
+        return stim.PauliString(("-" if s < 0 else "+") + "".join("_XZY"[a + 2 * b] for a, b in zip(x, z)))
+
+    tab = stim.Tableau.from_conjugated_generators(
+        xs=[pauli(tableau_x[2 * q], tableau_z[2 * q], tableau_sign[2 * q]) for q in range(n)],
+        zs=[pauli(tableau_x[2 * q + 1], tableau_z[2 * q + 1], tableau_sign[2 * q + 1]) for q in range(n)])
+    ops = []
+    for inst in tab.to_circuit("elimination"):
+        name = _STIM_TO_QASM[inst.name]
+        targets = [t.value for t in inst.targets_copy()]
+        width = 2 if name == "cx" else 1
+        ops += [(name, tuple(targets[i:i + width])) for i in range(0, len(targets), width)]
+    return ops
+
+
+def setting_ops(ensemble, settings: Settings, k: int):
+    """Gate list (name, qubits) in time order for setting position k, rotations to the bases included."""
+    ops = []
+    if ensemble.kind == "shallow":
+        words = clifford_table(2).words
+        for slot, (a, b) in enumerate(ensemble.gate_qubits.tolist()):
+            ops += [(name, tuple((a, b)[q] for q in qs)) for name, qs in words[settings.gates[k, slot]]]
+    if ensemble.kind == "global":
+        ops += _global_ops(settings.tableau_x[k], settings.tableau_z[k], settings.tableau_sign[k])
+    if settings.basis is not None:
+        for q, b in enumerate(settings.basis[k].tolist()):
+            if b == 0:
+                ops.append(("h", (q,)))
+            elif b == 1:
+                ops += [("sdg", (q,)), ("h", (q,))]
+    return ops
+
+
+def setting_qasm(ensemble, settings: Settings, k: int) -> str:
+    n = ensemble.n_qubits
+    lines = ["OPENQASM 3.0;", 'include "stdgates.inc";',
+             f"// manybody setting {int(settings.ids[k])}: {ensemble.describe()}"]
+    if settings.basis is not None:
+        lines.append("// measured bases, qubit 0 first: "
+                     + "".join(BASIS_LETTERS[b] for b in settings.basis[k].tolist()))
+    lines += [f"qubit[{n}] q;", f"bit[{n}] c;"]
+    lines += [f"{name} " + ", ".join(f"q[{q}]" for q in qs) + ";" for name, qs in setting_ops(ensemble, settings, k)]
+    lines.append("c = measure q;")
+    return "\n".join(lines) + "\n"
+
+
+def write_qasm_files(ensemble, settings: Settings, folder, progress=None) -> int:
+    """One file ``setting_<id>.qasm`` per setting; returns the number written."""
+    os.makedirs(folder, exist_ok=True)
+    indices = range(len(settings))
+    for k in (progress(indices) if progress else indices):
+        with atomic_path(os.path.join(folder, f"setting_{int(settings.ids[k])}.qasm")) as tmp:
+            with open(tmp, "w") as fh:
+                fh.write(setting_qasm(ensemble, settings, k))
+    return len(settings)

@@ -1,0 +1,274 @@
+"""Drawing snapshots of a state: exact Born sampling, dense and matrix-product.
+
+Every sampler takes the ensemble, its settings and a number of shots per
+setting, and returns outcome bits (K * shots, n) ordered setting by setting.
+The measured basis rotation of DESIGN.md section 2 (X: H; Y: S^dagger then H)
+is applied before a computational-basis measurement.
+
+- Dense: a batch of settings is held as a (B, 2^n) array; per-setting gates
+  are applied to the whole batch at once (einsum over the batch axis), then
+  shots are drawn by inverse-CDF search on the row probabilities.
+- MPS: the state is right-canonical, so the conditional probability of the
+  outcome at site q given the outcomes to its left is the squared norm of
+  the left vector times the site tensor. All snapshots advance together,
+  site by site, with one matrix product per basis.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from manybody.measure.clifford import clifford_table
+from manybody.measure.ensembles import Settings
+from manybody.simulation.statevector import BASIS_ROTATIONS, apply_unitary
+
+#: dense batches are kept below this many complex amplitudes.
+DENSE_BATCH_AMPLITUDES = 1 << 18
+
+
+def sample_rows(probs: np.ndarray, shots: int, rng) -> np.ndarray:
+    """For every row of ``probs`` (B, D), ``shots`` indices drawn from it: (B, shots)."""
+    b, d = probs.shape
+    cdf = np.cumsum(probs, axis=1)
+    cdf /= cdf[:, -1:]
+    offset = np.arange(b)[:, None]
+    u = rng.random((b, shots))
+    flat = np.searchsorted((cdf + offset).ravel(), (u + offset).ravel(), side="right")
+    return np.minimum(flat.reshape(b, shots) - offset * d, d - 1)
+
+
+def index_bits(index: np.ndarray, n: int) -> np.ndarray:
+    """Basis-state indices -> bits (qubit 0 = most significant)."""
+    shifts = np.arange(n - 1, -1, -1, dtype=np.int64)
+    return ((np.asarray(index, dtype=np.int64)[..., None] >> shifts) & 1).astype(np.uint8)
+
+
+def _apply_batched(states: np.ndarray, unitaries: np.ndarray, qubits, n: int) -> np.ndarray:
+    """A different k-qubit unitary per batch row, on the same qubits: (B, 2^n) -> (B, 2^n).
+
+    The target qubits are moved next to the batch axis, so that the update
+    is one batched matrix product (B, 2^k, 2^k) @ (B, 2^k, rest).
+    """
+    b = len(states)
+    k = len(qubits)
+    axes = [1 + q for q in qubits]
+    t = np.moveaxis(states.reshape((b,) + (2,) * n), axes, list(range(1, 1 + k)))
+    shape = t.shape
+    t = np.matmul(unitaries, np.ascontiguousarray(t).reshape(b, 2**k, -1))
+    t = np.moveaxis(t.reshape(shape), list(range(1, 1 + k)), axes)
+    return np.ascontiguousarray(t).reshape(b, 2**n)
+
+
+def rotate_dense(states, ensemble, settings: Settings, start: int):
+    """U of settings start..start+B applied to a batch of copies of the state."""
+    n = ensemble.n_qubits
+    b = len(states)
+    sel = slice(start, start + b)
+    if ensemble.kind == "shallow" and settings.gates is not None:
+        table = clifford_table(2)
+        for slot, (qa, qb) in enumerate(ensemble.gate_qubits.tolist()):
+            states = _apply_batched(states, table.unitaries[settings.gates[sel, slot]], (qa, qb), n)
+    if ensemble.kind == "global":
+        from manybody.measure.clifford import gate_matrix
+        from manybody.measure.qasm import setting_ops
+
+        for row in range(b):
+            for name, qubits in setting_ops(ensemble, settings, start + row):
+                local = gate_matrix(name, tuple(range(len(qubits))), len(qubits))
+                states[row] = apply_unitary(states[row], local, qubits)
+    if settings.basis is not None:
+        for q in range(n):
+            states = _apply_batched(states, BASIS_ROTATIONS[settings.basis[sel, q]], (q,), n)
+    return states
+
+
+def dense_to_tensors(psi: np.ndarray) -> list[np.ndarray]:
+    """Exact right-canonical MPS tensors (left, right, physical) of a dense state, by SVDs from the right."""
+    n = int(np.log2(len(psi)))
+    rest = np.asarray(psi, dtype=complex).reshape(-1, 1) / np.linalg.norm(psi)
+    tensors = []
+    for q in range(n - 1, -1, -1):
+        chi_r = rest.shape[1]
+        m = rest.reshape(-1, 2 * chi_r)  # (left, physical * right)
+        u, s, vh = np.linalg.svd(m, full_matrices=False)
+        keep = s > 1e-14 * s[0]
+        u, s, vh = u[:, keep], s[keep], vh[keep]
+        tensors.append(vh.reshape(-1, 2, chi_r).transpose(0, 2, 1))  # (l, r, p), right isometry
+        rest = u * s
+    tensors.reverse()
+    tensors[0] = tensors[0] * rest.reshape(-1)[0]  # the remaining 1x1 factor is a phase
+    return tensors
+
+
+def sample_dense(psi: np.ndarray, ensemble, settings: Settings, shots: int, rng, progress=None) -> np.ndarray:
+    """Outcome bits (K * shots, n) of a dense state, exact Born sampling.
+
+    Local bases only: the state is turned into an exact MPS and sampled site
+    by site (cheaper than rotating a copy of the state per setting). Circuit
+    ensembles: the circuits are applied to batches of copies.
+    """
+    n = ensemble.n_qubits
+    psi = np.asarray(psi, dtype=complex)
+    k = len(settings)
+    if ensemble.kind == "local" or (ensemble.kind == "shallow" and not len(ensemble.gate_qubits)):
+        rows = np.repeat(settings.basis, shots, axis=0)
+        return sample_mps_bases(dense_to_tensors(psi), rows, rng)
+    batch = max(1, DENSE_BATCH_AMPLITUDES // len(psi))
+    out = np.empty((k * shots, n), dtype=np.uint8)
+    starts = range(0, k, batch)
+    for start in (progress(starts) if progress else starts):
+        b = min(batch, k - start)
+        states = rotate_dense(np.broadcast_to(psi, (b, len(psi))).copy(), ensemble, settings, start)
+        idx = sample_rows(np.abs(states) ** 2, shots, rng)
+        out[start * shots:(start + b) * shots] = index_bits(idx.ravel(), n)
+    return out
+
+
+# ------------------------------------------------------------------- MPS
+def mps_site_tensors(mps) -> list[np.ndarray]:
+    """Right-canonical (left, right, physical) tensors of a quimb MPS (normalised copy)."""
+    m = mps.copy()
+    m.right_canonize()
+    m /= m.norm()
+    arrays = []
+    n = m.L
+    for q in range(n):
+        inds = ([m.bond(q - 1, q)] if q > 0 else []) + ([m.bond(q, q + 1)] if q < n - 1 else [])
+        a = np.asarray(m[q].transpose(*inds, m.site_ind(q)).data)  # gates may permute the indices
+        if q == 0:
+            a = a[None]
+        if q == n - 1:
+            a = a[:, None]
+        arrays.append(a)
+    return arrays
+
+
+def sample_mps_bases(tensors, basis_rows: np.ndarray, rng) -> np.ndarray:
+    """One snapshot per row of ``basis_rows`` (N, n) from right-canonical MPS tensors.
+
+    The left vectors V (N, chi) of all snapshots advance together: at site q
+    the candidates W[s, b] = V[s] A_q^(basis)[:, :, b] give the conditional
+    probabilities |W[s, b]|^2 / |V[s]|^2 (right canonical form), the drawn
+    outcome selects W[s, b_s], which is renormalised.
+    """
+    basis_rows = np.asarray(basis_rows)
+    count, n = basis_rows.shape
+    out = np.empty((count, n), dtype=np.uint8)
+    v = np.ones((count, 1), dtype=complex)
+    for q, a in enumerate(tensors):
+        chi_l, chi_r, _ = a.shape
+        w = np.empty((count, 2, chi_r), dtype=complex)
+        for code in range(3):
+            sel = basis_rows[:, q] == code
+            if not sel.any():
+                continue
+            rotated = np.einsum("ij,lrj->lir", BASIS_ROTATIONS[code], a).reshape(chi_l, 2 * chi_r)
+            w[sel] = (v[sel] @ rotated).reshape(-1, 2, chi_r)
+        weight = np.einsum("sbr,sbr->sb", w, w.conj()).real
+        p1 = weight[:, 1] / weight.sum(axis=1)
+        bit = (rng.random(count) < p1).astype(np.uint8)
+        out[:, q] = bit
+        v = w[np.arange(count), bit]
+        v /= np.linalg.norm(v, axis=1, keepdims=True)
+    return out
+
+
+def _shift_center(tensors, frm: int, to: int) -> None:
+    """Move the orthogonality centre of (l, r, p) tensors from site ``frm`` to site ``to`` by QR steps."""
+    for q in range(frm, to):  # rightwards: A_q = Q R, R absorbed into A_(q+1)
+        l, r, p = tensors[q].shape
+        qm, rm = np.linalg.qr(tensors[q].transpose(0, 2, 1).reshape(l * p, r))
+        tensors[q] = qm.reshape(l, p, -1).transpose(0, 2, 1)
+        nxt = tensors[q + 1]
+        tensors[q + 1] = (rm @ nxt.reshape(nxt.shape[0], -1)).reshape(rm.shape[0], *nxt.shape[1:])
+    for q in range(frm, to, -1):  # leftwards: A_q = L Q, L absorbed into A_(q-1)
+        l, r, p = tensors[q].shape
+        qm, rm = np.linalg.qr(tensors[q].reshape(l, r * p).T)
+        tensors[q] = qm.T.reshape(-1, r, p)
+        prev = tensors[q - 1]
+        moved = prev.transpose(0, 2, 1).reshape(-1, prev.shape[1]) @ rm.T  # (l p, r')
+        tensors[q - 1] = moved.reshape(prev.shape[0], prev.shape[2], -1).transpose(0, 2, 1)
+
+
+def _two_site_gate(tensors, a: int, u: np.ndarray, max_bond: int, cutoff: float) -> float:
+    """Apply u to sites (a, a+1) with the centre at a; truncated SVD leaves the centre at a+1.
+
+    Returns the discarded weight (sum of dropped squared singular values).
+    """
+    left, right = tensors[a], tensors[a + 1]
+    chi_l, chi_m, _ = left.shape
+    chi_r = right.shape[1]
+    # theta[(p q), (l r)] = sum_m A_a[l, m, p] A_(a+1)[m, r, q], then the gate on (p q)
+    theta = left.transpose(0, 2, 1).reshape(chi_l * 2, chi_m) @ right.transpose(0, 2, 1).reshape(chi_m, 2 * chi_r)
+    theta = theta.reshape(chi_l, 4, chi_r).transpose(1, 0, 2).reshape(4, chi_l * chi_r)
+    theta = (u @ theta).reshape(2, 2, chi_l, chi_r).transpose(2, 0, 1, 3)
+    uu, ss, vh = np.linalg.svd(theta.reshape(chi_l * 2, 2 * chi_r), full_matrices=False)
+    total = float(np.sum(ss**2))
+    keep = min(max_bond, int(np.sum(ss > cutoff * ss[0])))
+    lost = float(np.sum(ss[keep:] ** 2)) / total
+    uu, ss, vh = uu[:, :keep], ss[:keep], vh[:keep]
+    tensors[a] = uu.reshape(chi_l, 2, keep).transpose(0, 2, 1)
+    tensors[a + 1] = (ss[:, None] * vh).reshape(keep, 2, chi_r).transpose(0, 2, 1)
+    return lost
+
+
+def apply_circuit_tensors(tensors, gates, max_bond: int, cutoff: float = 1e-12):
+    """Apply two-qubit gates [(u, a, b)] in order to right-canonical (l, r, p) tensors.
+
+    The orthogonality centre follows the gates (QR steps), each gate is a
+    truncated two-site SVD; gates on distant qubits travel with SWAPs.
+    Returns new right-canonical tensors of the normalised state and the
+    total discarded weight (a bound on 1 - fidelity, to first order).
+    """
+    swap = np.eye(4)[[0, 2, 1, 3]]
+    tensors = list(tensors)
+    center, lost = 0, 0.0
+    for u, a, b in gates:
+        if a > b:  # keep the first gate qubit on the left: conjugate by SWAP
+            a, b, u = b, a, swap @ u @ swap
+        _shift_center(tensors, center, a)
+        for q in range(a, b - 1):  # bring qubit a next to b
+            lost += _two_site_gate(tensors, q, swap, max_bond, cutoff)
+        lost += _two_site_gate(tensors, b - 1, u, max_bond, cutoff)
+        center = b
+        for q in range(b - 2, a - 1, -1):  # and back
+            _shift_center(tensors, center, q + 1)
+            lost += _two_site_gate(tensors, q, swap, max_bond, cutoff)
+            center = q + 1
+    _shift_center(tensors, center, 0)
+    tensors[0] = tensors[0] / np.linalg.norm(tensors[0])
+    return tensors, lost
+
+
+def apply_setting_mps(tensors, ensemble, settings: Settings, k: int, max_bond: int, cutoff: float = 1e-12):
+    """Right-canonical tensors after the gates of shallow setting k, and the discarded weight."""
+    table = clifford_table(2)
+    gates = [(table.unitaries[settings.gates[k, slot]], qa, qb)
+             for slot, (qa, qb) in enumerate(ensemble.gate_qubits.tolist())]
+    return apply_circuit_tensors(tensors, gates, max_bond, cutoff)
+
+
+def sample_mps(mps, ensemble, settings: Settings, shots: int, rng, max_bond: int = 128,
+               progress=None, chunk: int = 4096):
+    """Outcome bits (K * shots, n) from an MPS; returns (bits, largest discarded weight)."""
+    n = ensemble.n_qubits
+    k = len(settings)
+    out = np.empty((k * shots, n), dtype=np.uint8)
+    if ensemble.kind == "global":
+        raise ValueError("the global ensemble needs the dense backend")
+    discarded = 0.0
+    if ensemble.kind == "local" or not len(ensemble.gate_qubits):
+        tensors = mps_site_tensors(mps)
+        rows = np.repeat(settings.basis, shots, axis=0)
+        starts = range(0, len(rows), chunk)
+        for start in (progress(starts) if progress else starts):
+            out[start:start + chunk] = sample_mps_bases(tensors, rows[start:start + chunk], rng)
+        return out, discarded
+    tensors = mps_site_tensors(mps)
+    indices = range(k)
+    for j in (progress(indices) if progress else indices):
+        rotated, lost = apply_setting_mps(tensors, ensemble, settings, j, max_bond)
+        discarded = max(discarded, lost)
+        rows = np.repeat(settings.basis[j:j + 1], shots, axis=0)
+        out[j * shots:(j + 1) * shots] = sample_mps_bases(rotated, rows, rng)
+    return out, discarded
