@@ -25,7 +25,6 @@ from manybody.estimation.kernels import (
     histogram_pair_sum,
     local_columns,
     local_products,
-    pauli_string_codes,
     site_factor_matrix,
     words,
 )
@@ -38,7 +37,7 @@ from manybody.estimation.purity import (
     pair_count_jackknife,
     purity_chunk,
 )
-from manybody.measure.ensembles import BASIS_PAULI
+from manybody.measure.paulis import BASIS_PAULI, pauli_string_codes
 from manybody.measure.propagation import snapshot_values
 
 AXES = ("X", "Y", "Z")

@@ -9,14 +9,7 @@ per-block sums).
 
 from __future__ import annotations
 
-import itertools
-
 import numpy as np
-
-from manybody.measure.ensembles import BASIS_PAULI
-
-#: axis index (X, Y, Z) -> one-qubit Pauli code (I 0, X 1, Z 2, Y 3)
-AXIS_CODES = BASIS_PAULI
 
 
 def local_columns(basis: np.ndarray, bits: np.ndarray, inv_lambda, dtype=np.float64) -> np.ndarray:
@@ -50,20 +43,6 @@ def local_products(columns: np.ndarray, supports: np.ndarray, axes: np.ndarray) 
     for k in range(1, idx.shape[1]):
         out *= flat[:, idx[:, k]]
     return out
-
-
-def pauli_string_codes(strings_x: np.ndarray, strings_z: np.ndarray) -> np.ndarray:
-    """One-qubit codes (I 0, X 1, Z 2, Y 3) from x and z bits: (T, n)."""
-    return strings_x.astype(np.uint8) + 2 * strings_z.astype(np.uint8)
-
-
-def paulis_on(qubits, n_qubits: int) -> np.ndarray:
-    """All 4^|A| Pauli strings supported in ``qubits``, as codes (4^|A|, n); row 0 is the identity."""
-    qubits = list(qubits)
-    rows = np.zeros((4 ** len(qubits), n_qubits), dtype=np.uint8)
-    for r, letters in enumerate(itertools.product(range(4), repeat=len(qubits))):
-        rows[r, qubits] = letters
-    return rows
 
 
 # --------------------------------------------------------------- purity

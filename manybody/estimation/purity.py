@@ -11,7 +11,8 @@ from __future__ import annotations
 import numpy as np
 
 from manybody.errors import InputError
-from manybody.estimation.kernels import histogram_index, pair_count_sum, paulis_on, site_factor_matrix, words
+from manybody.estimation.kernels import histogram_index, pair_count_sum, site_factor_matrix, words
+from manybody.measure.paulis import paulis_on
 from manybody.measure.propagation import snapshot_values
 
 HISTOGRAM_MAX_SITES = 8

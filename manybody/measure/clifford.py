@@ -33,7 +33,6 @@ _S = np.diag([1, 1j])
 _SINGLE = {"h": _H, "s": _S, "sdg": _S.conj(), "x": np.array([[0, 1], [1, 0]], dtype=complex),
            "y": np.array([[0, -1j], [1j, 0]]), "z": np.diag([1.0 + 0j, -1.0])}
 _PAULI_1Q = {0: _I2, 1: _SINGLE["x"], 2: _SINGLE["z"], 3: _SINGLE["y"]}
-LETTER_OF_CODE = "IXZY"
 
 
 def pauli_matrix_2q(code: int) -> np.ndarray:

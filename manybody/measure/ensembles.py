@@ -16,10 +16,8 @@ import networkx as nx
 import numpy as np
 
 from manybody.measure.eigenvalues import contract_support_chain, global_eigenvalue, local_eigenvalue, support_chain_key
+from manybody.measure.paulis import BASIS_LETTERS
 
-BASIS_LETTERS = "XYZ"
-#: one-qubit Pauli code (0 I, 1 X, 2 Z, 3 Y) of each basis code.
-BASIS_PAULI = np.array([1, 3, 2], dtype=np.uint8)
 N_TWO_QUBIT_CLIFFORDS = 11520
 ENSEMBLE_KINDS = ("local", "shallow", "global")
 #: the global ensemble tableau grows as 4 n^2 bits per setting; simulation as 2^n.

@@ -15,13 +15,8 @@ import numpy as np
 
 from hamiltonians.pauli import product_phase
 from manybody.measure.clifford import clifford_table
-from manybody.measure.ensembles import BASIS_PAULI, Settings
-
-
-def pauli_codes(string: str) -> np.ndarray:
-    """One-qubit codes of a string over I, X, Y, Z."""
-    table = {"I": 0, "X": 1, "Z": 2, "Y": 3}
-    return np.array([table[c] for c in string], dtype=np.uint8)
+from manybody.measure.ensembles import Settings
+from manybody.measure.paulis import BASIS_PAULI
 
 
 def propagate_layers(codes: np.ndarray, gates: np.ndarray, gate_qubits: np.ndarray):

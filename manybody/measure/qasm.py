@@ -6,7 +6,8 @@ import os
 
 from manybody.io.files import atomic_path
 from manybody.measure.clifford import clifford_table
-from manybody.measure.ensembles import BASIS_LETTERS, Settings
+from manybody.measure.ensembles import Settings
+from manybody.measure.paulis import BASIS_LETTERS
 
 _STIM_TO_QASM = {"H": "h", "S": "s", "S_DAG": "sdg", "X": "x", "Y": "y", "Z": "z", "CX": "cx"}
 

@@ -24,8 +24,8 @@ import numpy as np
 import xarray as xr
 
 from hamiltonians.pauli import PauliExpansion
-from manybody.estimation.kernels import pauli_string_codes, paulis_on
 from manybody.measure.ensembles import LocalEnsemble, ShallowEnsemble
+from manybody.measure.paulis import pauli_string_codes, paulis_on
 from manybody.measure.prepare import coupling_of
 
 #: random settings over which the joint visibility of two terms is averaged

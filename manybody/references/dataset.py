@@ -7,8 +7,8 @@ import xarray as xr
 
 from hamiltonians.pauli import PauliExpansion
 from manybody import __version__
-from manybody.estimation.driver import AXES, _reciprocal_points, _term_table, structure_factor
 from manybody.references import exact
+from manybody.schema import AXES, reciprocal_points, structure_factor, term_table
 
 
 def _pauli(n, letters_at) -> PauliExpansion:
@@ -22,7 +22,7 @@ def reference_dataset(model, psi: np.ndarray, subsystems=(), label: dict | None 
     """Exact energy, densities, variance, magnetization, correlations, purities and I2 of a dense state."""
     n, n_sites = model.n_qubits, model.n_sites
     ham = model.hamiltonian
-    codes, coeffs, density = _term_table(ham, model.qubit_site, n_sites)
+    codes, coeffs, density = term_table(ham, model.qubit_site, n_sites)
     op = ham.simplify()
     values = exact.pauli_expectations(op, psi)
     energy = float(np.real(values @ coeffs))
@@ -54,7 +54,7 @@ def reference_dataset(model, psi: np.ndarray, subsystems=(), label: dict | None 
                 pair = exact.purity(exact.reduced_density_matrix(psi, [qa, qb]))
                 mi[qa, qb] = mi[qb, qa] = -np.log(single[qa]) - np.log(single[qb]) + np.log(pair)
         data["mutual_information"] = (("site_a", "site_b"), mi)
-        reciprocal = _reciprocal_points(model)
+        reciprocal = reciprocal_points(model)
         if reciprocal is not None:
             q, phase = reciprocal
             coords.update(q=np.arange(len(q)), qx=("q", q[:, 0]), qy=("q", q[:, 1]))

@@ -12,12 +12,12 @@ from manybody.estimation.kernels import (
     local_columns,
     local_products,
     pair_count_sum,
-    paulis_on,
     setting_purity_estimate,
     site_factor_matrix,
     words,
 )
 from manybody.measure.ensembles import GlobalEnsemble, LocalEnsemble, ShallowEnsemble
+from manybody.measure.paulis import paulis_on
 from manybody.measure.propagation import snapshot_values
 from manybody.references import exact
 from manybody.references.dataset import reference_dataset

@@ -5,7 +5,8 @@ import pytest
 
 from hamiltonians.pauli import PauliExpansion
 from manybody.measure.ensembles import GlobalEnsemble, LocalEnsemble, ShallowEnsemble
-from manybody.measure.propagation import pauli_codes, snapshot_values
+from manybody.measure.paulis import pauli_codes
+from manybody.measure.propagation import snapshot_values
 from tests.helpers import chain, dense_unitary
 
 N = 6
