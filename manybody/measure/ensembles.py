@@ -1,4 +1,4 @@
-"""Measurement ensembles and their settings (DESIGN.md section 3).
+"""Measurement ensembles and their settings (docs/design.md section 3).
 
 A setting is one draw of the random unitary: for the local ensemble a basis
 per qubit (codes 0 = X, 1 = Y, 2 = Z); for the shallow ensemble a Clifford
@@ -9,17 +9,19 @@ Settings are stored explicitly, never only as a seed.
 
 from __future__ import annotations
 
+from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from functools import cached_property
 
 import networkx as nx
 import numpy as np
 
+from manybody.measure.clifford import clifford_table
 from manybody.measure.eigenvalues import contract_support_chain, global_eigenvalue, local_eigenvalue, support_chain_key
-from manybody.measure.paulis import BASIS_LETTERS
+from manybody.measure.paulis import BASIS_LETTERS, BASIS_PAULI
+from manybody.measure.propagation import propagate_layers, propagate_tableau
 
 N_TWO_QUBIT_CLIFFORDS = 11520
-ENSEMBLE_KINDS = ("local", "shallow", "global")
 #: the global ensemble tableau grows as 4 n^2 bits per setting; simulation as 2^n.
 MAX_GLOBAL_QUBITS = 16
 
@@ -56,13 +58,93 @@ def basis_strings(basis: np.ndarray) -> list[str]:
     return [row.tobytes().decode() for row in table[basis]]
 
 
+class Ensemble(ABC):
+    """What every measurement ensemble provides (docs/design.md section 3).
+
+    ``kind`` ("local", "shallow", "global"), ``n_qubits`` and ``depth`` name it;
+    ``is_local`` says whether a setting is only a random X/Y/Z basis per qubit
+    (the local ensemble, and the shallow ensemble at depth 0), which is what
+    the fast product-form estimators need. The channel is diagonal in the
+    Pauli basis with eigenvalue :meth:`eigenvalue` of a support; a snapshot's
+    value <b|U P U^dag|b> comes from :meth:`setting_factors`, computed once per
+    setting and then applied to every shot of it.
+    """
+
+    kind: str
+    n_qubits: int
+    depth: int
+
+    @property
+    def is_local(self) -> bool:
+        return False
+
+    @abstractmethod
+    def draw(self, n_settings: int, rng) -> Settings:
+        """``n_settings`` independent settings drawn with ``rng`` (a Generator or a seed)."""
+
+    @abstractmethod
+    def eigenvalue(self, support) -> float:
+        """lambda_P of a Pauli with this support (a boolean mask or a list of qubits)."""
+
+    @abstractmethod
+    def final_paulis(self, codes: np.ndarray, settings: Settings):
+        """U P U^dag = sign * Q per setting, before the local basis: Q as codes (K, n) and sign (K,)."""
+
+    @abstractmethod
+    def gates(self, settings: Settings, k: int) -> list[tuple[str, tuple[int, ...]]]:
+        """Standard gates (h, s, sdg, x, y, z, cx) of setting position ``k`` in time order, basis rotations included."""
+
+    @abstractmethod
+    def describe(self) -> str:
+        """One line for people: what a setting is."""
+
+    def setting_factors(self, codes, settings: Settings):
+        """Per setting, the qubits whose outcome bits enter the value of P and its sign.
+
+        Returns (mask (K, n) bool, sign (K,) in {-1, 0, +1}); sign 0 means that
+        U P U^dag is not Z-type after the basis rotation, so P is invisible.
+        """
+        final, sign = self.final_paulis(np.asarray(codes, dtype=np.uint8), settings)
+        support = final != 0
+        matched = ~support | (final == BASIS_PAULI[settings.basis])
+        return support, np.where(matched.all(axis=1), sign, 0).astype(np.int8)
+
+    def snapshot_values(self, codes, settings: Settings, setting_index, outcomes) -> np.ndarray:
+        """<b|U P U^dag|b> for every snapshot: (N,) int8 in {-1, 0, +1}.
+
+        ``setting_index`` (N,) positions in ``settings``; ``outcomes`` (N, n) bits.
+        """
+        mask, sign = self.setting_factors(codes, settings)
+        parity = np.bitwise_xor.reduce(outcomes & mask[setting_index], axis=1)
+        return (sign[setting_index] * (1 - 2 * parity.astype(np.int8))).astype(np.int8)
+
+    def same_as(self, other) -> bool:
+        """Whether ``other`` draws from the same ensemble (kind, qubits, depth, gate layout)."""
+        return (self.kind, self.n_qubits, self.depth) == (other.kind, other.n_qubits, other.depth)
+
+
+def _basis_gates(settings: Settings, k: int) -> list[tuple[str, tuple[int, ...]]]:
+    """Rotations that turn a Z measurement into the X (H) or Y (S^dag, then H) measurement of each qubit."""
+    ops = []
+    for q, b in enumerate(settings.basis[k].tolist()):
+        if b == 0:
+            ops.append(("h", (q,)))
+        elif b == 1:
+            ops += [("sdg", (q,)), ("h", (q,))]
+    return ops
+
+
 @dataclass(frozen=True)
-class LocalEnsemble:
+class LocalEnsemble(Ensemble):
     """Every qubit measured in an independent uniformly random basis X, Y or Z."""
 
     n_qubits: int
     kind: str = field(default="local", init=False)
     depth: int = field(default=0, init=False)
+
+    @property
+    def is_local(self) -> bool:
+        return True
 
     def draw(self, n_settings: int, rng) -> Settings:
         rng = np.random.default_rng(rng)
@@ -72,12 +154,18 @@ class LocalEnsemble:
     def eigenvalue(self, support) -> float:
         return float(local_eigenvalue(np.count_nonzero(support)))
 
+    def final_paulis(self, codes, settings):
+        return np.broadcast_to(codes, (len(settings), len(codes))), np.ones(len(settings), dtype=np.int8)
+
+    def gates(self, settings, k):
+        return _basis_gates(settings, k)
+
     def describe(self) -> str:
         return f"local random X/Y/Z bases on {self.n_qubits} qubits"
 
 
 @dataclass(frozen=True, eq=False)
-class ShallowEnsemble:
+class ShallowEnsemble(Ensemble):
     """``depth`` layers of random two-qubit Cliffords on disjoint edges, then random local bases.
 
     ``coupling`` is the (m, 2) edge list of the coupling graph; the layers
@@ -94,6 +182,10 @@ class ShallowEnsemble:
             raise ValueError("depth must be >= 0")
         object.__setattr__(self, "coupling", np.asarray(self.coupling, dtype=np.int64).reshape(-1, 2))
         object.__setattr__(self, "_cache", {})
+
+    @property
+    def is_local(self) -> bool:
+        return len(self.gate_qubits) == 0
 
     @cached_property
     def layers(self) -> tuple[np.ndarray, ...]:
@@ -128,13 +220,28 @@ class ShallowEnsemble:
             cache[key] = contract_support_chain(*key)
         return cache[key]
 
+    def final_paulis(self, codes, settings):
+        if settings.gates is not None and settings.gates.shape[1]:
+            return propagate_layers(codes, settings.gates, self.gate_qubits)
+        return LocalEnsemble.final_paulis(self, codes, settings)
+
+    def gates(self, settings, k):
+        words = clifford_table(2).words
+        ops = []
+        for slot, (a, b) in enumerate(self.gate_qubits.tolist()):
+            ops += [(name, tuple((a, b)[q] for q in qs)) for name, qs in words[settings.gates[k, slot]]]
+        return ops + _basis_gates(settings, k)
+
+    def same_as(self, other) -> bool:
+        return super().same_as(other) and np.array_equal(self.gate_qubits, other.gate_qubits)
+
     def describe(self) -> str:
         return (f"shallow depth-{self.depth} random two-qubit Clifford circuits on {len(self.coupling)} "
                 f"coupling edges of {self.n_qubits} qubits, then random X/Y/Z bases")
 
 
 @dataclass(frozen=True)
-class GlobalEnsemble:
+class GlobalEnsemble(Ensemble):
     """One uniformly random n-qubit Clifford per setting, then a Z-basis measurement."""
 
     n_qubits: int
@@ -151,19 +258,36 @@ class GlobalEnsemble:
     def eigenvalue(self, support) -> float:
         return float(global_eigenvalue(self.n_qubits, np.count_nonzero(support)))
 
+    def final_paulis(self, codes, settings):
+        raise NotImplementedError("global Cliffords are measured in Z only: see setting_factors")
+
+    def setting_factors(self, codes, settings: Settings):
+        rx, rz, sign = propagate_tableau(np.asarray(codes, dtype=np.uint8), settings.tableau_x, settings.tableau_z,
+                                         settings.tableau_sign)
+        visible = ~rx.any(axis=1)
+        return rz.astype(bool), np.where(visible, sign, 0).astype(np.int8)
+
+    def gates(self, settings, k):
+        from manybody.measure.qasm import tableau_gates
+
+        return tableau_gates(settings.tableau_x[k], settings.tableau_z[k], settings.tableau_sign[k])
+
     def describe(self) -> str:
         return f"global random Cliffords on {self.n_qubits} qubits"
 
 
-def make_ensemble(kind: str, n_qubits: int, depth: int = 0, coupling=None):
+#: the ensembles by name (the ``ensemble`` attribute of settings and shadow files)
+ENSEMBLES = {"local": LocalEnsemble, "shallow": ShallowEnsemble, "global": GlobalEnsemble}
+ENSEMBLE_KINDS = tuple(ENSEMBLES)
+
+
+def make_ensemble(kind: str, n_qubits: int, depth: int = 0, coupling=None) -> Ensemble:
     """An ensemble by name; ``shallow`` with depth 0 is the local ensemble in all but name."""
-    if kind == "local":
-        return LocalEnsemble(n_qubits)
+    if kind not in ENSEMBLES:
+        raise ValueError(f"unknown ensemble {kind!r}; allowed: {', '.join(ENSEMBLE_KINDS)}")
     if kind == "shallow":
         return ShallowEnsemble(n_qubits, depth, np.zeros((0, 2)) if coupling is None else coupling)
-    if kind == "global":
-        return GlobalEnsemble(n_qubits)
-    raise ValueError(f"unknown ensemble {kind!r}; allowed: {', '.join(ENSEMBLE_KINDS)}")
+    return ENSEMBLES[kind](n_qubits)
 
 
 def edge_layers(n_qubits: int, edges) -> list[np.ndarray]:

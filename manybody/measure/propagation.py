@@ -2,7 +2,7 @@
 
 With Clifford U, U P U^dagger = s Q for a Pauli Q; the value is s (-1)^(sum
 of outcome bits on the support of Q) when Q is Z-type after the final basis
-rotation, and 0 otherwise (DESIGN.md section 3). Propagation runs once per
+rotation, and 0 otherwise (docs/design.md section 3). Propagation runs once per
 setting (a table look-up per gate in the light cone, vectorised over all
 settings); the outcome bits then give every snapshot's value.
 
@@ -15,8 +15,6 @@ import numpy as np
 
 from hamiltonians.pauli import product_phase
 from manybody.measure.clifford import clifford_table
-from manybody.measure.ensembles import Settings
-from manybody.measure.paulis import BASIS_PAULI
 
 
 def propagate_layers(codes: np.ndarray, gates: np.ndarray, gate_qubits: np.ndarray):
@@ -67,34 +65,11 @@ def propagate_tableau(codes: np.ndarray, tableau_x, tableau_z, tableau_sign):
     return rx, rz, (sign * np.where(phase == 2, -1, 1)).astype(np.int8)
 
 
-def setting_factors(codes: np.ndarray, ensemble, settings: Settings):
-    """Per setting: which qubits the measured Pauli covers, and its sign.
-
-    Returns (mask (K, n) bool of qubits whose outcome bit enters, sign (K,)
-    in {-1, 0, +1}); sign 0 means P is invisible in that setting.
-    """
-    codes = np.asarray(codes, dtype=np.uint8)
-    if ensemble.kind == "global":
-        rx, rz, sign = propagate_tableau(codes, settings.tableau_x, settings.tableau_z,
-                                         settings.tableau_sign)
-        visible = ~rx.any(axis=1)
-        return rz.astype(bool), np.where(visible, sign, 0).astype(np.int8)
-    if ensemble.kind == "shallow" and settings.gates is not None and settings.gates.shape[1]:
-        final, sign = propagate_layers(codes, settings.gates, ensemble.gate_qubits)
-    else:
-        final = np.broadcast_to(codes, (len(settings), len(codes)))
-        sign = np.ones(len(settings), dtype=np.int8)
-    support = final != 0
-    matched = ~support | (final == BASIS_PAULI[settings.basis])
-    return support, np.where(matched.all(axis=1), sign, 0).astype(np.int8)
+def setting_factors(codes: np.ndarray, ensemble, settings):
+    """Per setting: which qubits the measured Pauli covers, and its sign (see ``Ensemble.setting_factors``)."""
+    return ensemble.setting_factors(codes, settings)
 
 
-def snapshot_values(codes, ensemble, settings: Settings, setting_index, outcomes) -> np.ndarray:
-    """<b|U P U^dagger|b> for every snapshot: (N,) int8 in {-1, 0, +1}.
-
-    setting_index : (N,) position of each snapshot's setting in ``settings``;
-    outcomes : (N, n) bits.
-    """
-    mask, sign = setting_factors(codes, ensemble, settings)
-    parity = np.bitwise_xor.reduce(outcomes & mask[setting_index], axis=1)
-    return (sign[setting_index] * (1 - 2 * parity.astype(np.int8))).astype(np.int8)
+def snapshot_values(codes, ensemble, settings, setting_index, outcomes) -> np.ndarray:
+    """<b|U P U^dagger|b> for every snapshot: (N,) int8 in {-1, 0, +1} (see ``Ensemble.snapshot_values``)."""
+    return ensemble.snapshot_values(codes, settings, setting_index, outcomes)

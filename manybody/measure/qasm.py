@@ -5,14 +5,13 @@ from __future__ import annotations
 import os
 
 from manybody.io.files import atomic_path
-from manybody.measure.clifford import clifford_table
 from manybody.measure.ensembles import Settings
 from manybody.measure.paulis import BASIS_LETTERS
 
 _STIM_TO_QASM = {"H": "h", "S": "s", "S_DAG": "sdg", "X": "x", "Y": "y", "Z": "z", "CX": "cx"}
 
 
-def _global_ops(tableau_x, tableau_z, tableau_sign):
+def tableau_gates(tableau_x, tableau_z, tableau_sign):
     """Gate list of an n-qubit Clifford tableau, synthesised by stim (Gaussian elimination)."""
     import stim
 
@@ -35,20 +34,7 @@ def _global_ops(tableau_x, tableau_z, tableau_sign):
 
 def setting_ops(ensemble, settings: Settings, k: int):
     """Gate list (name, qubits) in time order for setting position k, rotations to the bases included."""
-    ops = []
-    if ensemble.kind == "shallow":
-        words = clifford_table(2).words
-        for slot, (a, b) in enumerate(ensemble.gate_qubits.tolist()):
-            ops += [(name, tuple((a, b)[q] for q in qs)) for name, qs in words[settings.gates[k, slot]]]
-    if ensemble.kind == "global":
-        ops += _global_ops(settings.tableau_x[k], settings.tableau_z[k], settings.tableau_sign[k])
-    if settings.basis is not None:
-        for q, b in enumerate(settings.basis[k].tolist()):
-            if b == 0:
-                ops.append(("h", (q,)))
-            elif b == 1:
-                ops += [("sdg", (q,)), ("h", (q,))]
-    return ops
+    return ensemble.gates(settings, k)
 
 
 def setting_qasm(ensemble, settings: Settings, k: int) -> str:

@@ -64,16 +64,15 @@ def rotate_dense(states, ensemble, settings: Settings, start: int):
     n = ensemble.n_qubits
     b = len(states)
     sel = slice(start, start + b)
-    if ensemble.kind == "shallow" and settings.gates is not None:
+    if settings.gates is not None:  # layers of two-qubit gates, batched over settings
         table = clifford_table(2)
         for slot, (qa, qb) in enumerate(ensemble.gate_qubits.tolist()):
             states = _apply_batched(states, table.unitaries[settings.gates[sel, slot]], (qa, qb), n)
-    if ensemble.kind == "global":
+    if settings.tableau_x is not None:  # global Cliffords, gate by gate
         from manybody.measure.clifford import gate_matrix
-        from manybody.measure.qasm import setting_ops
 
         for row in range(b):
-            for name, qubits in setting_ops(ensemble, settings, start + row):
+            for name, qubits in ensemble.gates(settings, start + row):
                 local = gate_matrix(name, tuple(range(len(qubits))), len(qubits))
                 states[row] = apply_unitary(states[row], local, qubits)
     if settings.basis is not None:
@@ -110,7 +109,7 @@ def sample_dense(psi: np.ndarray, ensemble, settings: Settings, shots: int, rng,
     n = ensemble.n_qubits
     psi = np.asarray(psi, dtype=complex)
     k = len(settings)
-    if ensemble.kind == "local" or (ensemble.kind == "shallow" and not len(ensemble.gate_qubits)):
+    if ensemble.is_local:
         rows = np.repeat(settings.basis, shots, axis=0)
         return sample_mps_bases(dense_to_tensors(psi), rows, rng)
     batch = max(1, DENSE_BATCH_AMPLITUDES // len(psi))
@@ -257,7 +256,7 @@ def sample_mps(mps, ensemble, settings: Settings, shots: int, rng, max_bond: int
     if ensemble.kind == "global":
         raise ValueError("the global ensemble needs the dense backend")
     discarded = 0.0
-    if ensemble.kind == "local" or not len(ensemble.gate_qubits):
+    if ensemble.is_local:
         tensors = mps_site_tensors(mps)
         rows = np.repeat(settings.basis, shots, axis=0)
         starts = range(0, len(rows), chunk)
