@@ -1,57 +1,17 @@
-"""Purities and the mutual-information map as per-block sums (DESIGN.md section 4).
+"""Sums over pairs of snapshots for purities and mutual information (docs/design.md section 4).
 
-Local ensemble: histograms of (basis, outcome) words for small subsystems,
-pair counts for large ones, and for all site pairs at once the Gram matrix
-of one-hot words. Circuit ensembles: Pauli vectors. Pairs of snapshots from
-the same setting are left out (their within-setting sums are subtracted).
+Local ensemble: within-setting pair sums from per-setting outcome
+histograms, cross-setting pair counts for large subsystems, and every
+single-site and site-pair purity at once from the Gram matrix of one-hot
+(basis, outcome) words. Circuit ensembles: two-site purities from Pauli-
+vector sums built out of one- and two-site estimates.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from manybody.errors import InputError
-from manybody.estimation.kernels import histogram_index, pair_count_sum, site_factor_matrix, words
-from manybody.measure.paulis import paulis_on
-from manybody.measure.propagation import snapshot_values
-
-HISTOGRAM_MAX_SITES = 8
-PAULI_VECTOR_MAX_QUBITS = 6
-
-
-def purity_chunk(i, qs, local, lam, ens, sub, where, pos, bits, basis, onehot, sums, multi, per_setting_add,
-                  pair_words):
-    k = len(qs)
-    if local and k <= HISTOGRAM_MAX_SITES:
-        w = words(basis[:, qs], bits[:, qs])
-        idx = histogram_index(w)
-        part = np.zeros((onehot.shape[1], 6**k))
-        np.add.at(part, (np.argmax(onehot, axis=1), idx), 1.0)
-        sums.add_blocks(f"hist{i}", part)
-        if multi:
-            out_idx = bits[:, qs] @ (2 ** np.arange(k - 1, -1, -1))
-            o = np.zeros((len(pos), 2**k))
-            o[np.arange(len(pos)), out_idx] = 1.0
-            per_setting_add(f"oh{i}", pos, o)
-        else:
-            inv = lam.inv_local(ens.n_qubits)[qs]
-            diag = np.prod((1 + inv**2) / 2)  # tr(rho_i^A rho_i^A) of one snapshot
-            sums.add(f"hw{i}", onehot, np.full(len(pos), diag))
-    elif local:
-        pair_words[i].append((words(basis[:, qs], bits[:, qs]), pos, np.argmax(onehot, axis=1)))
-    else:
-        if len(qs) > PAULI_VECTOR_MAX_QUBITS:
-            raise InputError(f"purities of {len(qs)} qubits need the local ensemble; circuit ensembles take "
-                             f"subsystems of at most {PAULI_VECTOR_MAX_QUBITS} qubits")
-        codes = paulis_on(qs, ens.n_qubits)
-        v = np.ones((len(pos), len(codes)))
-        for r in range(1, len(codes)):
-            v[:, r] = snapshot_values(codes[r], ens, sub, where, bits) / lam.of(codes[r])
-        sums.add(f"pv{i}", onehot, v)
-        if multi:
-            per_setting_add(f"pv{i}", pos, v)
-        else:
-            sums.add(f"pw{i}", onehot, np.sum(v * v, axis=1))
+from manybody.estimation.kernels import pair_count_sum, site_factor_matrix
 
 
 def outcome_within(hists, setting_block, n_blocks, k, inv):

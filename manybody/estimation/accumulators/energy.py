@@ -1,0 +1,103 @@
+"""Energy, energy density and energy variance of the model's Hamiltonian (docs/design.md section 4).
+
+Per snapshot the energy estimate is sum_P c_P o_P (one number, so its error
+bar includes the covariances between terms); the density splits each term
+equally among the sites it acts on. The variance <H^2> - <H>^2 estimates
+<H^2> from the terms of H^2 and <H>^2 from pairs of snapshots of different
+settings (unbiased).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from manybody.estimation.accumulators.base import Accumulator, pair_count, put
+from manybody.estimation.kernels import local_products
+from manybody.estimation.sums import within_sums
+from manybody.measure.paulis import AXIS_OF_CODE, pauli_string_codes
+from manybody.schema import term_table
+
+#: H^2 is expanded into a term table only up to this many terms (a tenth for circuit ensembles)
+MAX_SQUARED_TERMS = 20000
+
+
+def term_values(codes, lam_terms, chunk) -> np.ndarray:
+    """Single-snapshot estimates of every Pauli string of a term table: (N, T).
+
+    Local ensemble: products of one-site columns (exact, since the estimator
+    factorizes over sites), one weight at a time. Circuit ensembles: one
+    propagation per string.
+    """
+    out = np.empty((len(chunk), len(codes)))
+    weight = np.count_nonzero(codes, axis=1)
+    if chunk.setup.local:
+        f = chunk.columns
+        for w in np.unique(weight):
+            sel = np.flatnonzero(weight == w)
+            if w == 0:
+                out[:, sel] = 1.0
+                continue
+            sup = np.array([np.flatnonzero(codes[t]) for t in sel])
+            axes = AXIS_OF_CODE[np.take_along_axis(codes[sel], sup, axis=1)]
+            out[:, sel] = local_products(f, sup, axes)
+        return out
+    ens = chunk.setup.ensemble
+    for t, c in enumerate(codes):
+        out[:, t] = 1.0 if weight[t] == 0 else ens.snapshot_values(c, chunk.settings, chunk.where,
+                                                                    chunk.bits) / lam_terms[t]
+    return out
+
+
+class Energy(Accumulator):
+    plain_means = {"energy": "energy", "energy_density": "density"}
+    analytic_means = {"energy": ("energy", "energy_sq_snap")}
+
+    def __init__(self, setup):
+        super().__init__(setup)
+        ham = setup.model.hamiltonian
+        lam = setup.lam
+        self.codes, self.coeffs, self.density = term_table(ham, setup.qubit_site, setup.n_sites)
+        self.lam_terms = np.array([lam.of(c) for c in self.codes])
+        h2 = (ham * ham).combined(atol=1e-12)
+        self.squared = None
+        if len(h2) <= (MAX_SQUARED_TERMS if setup.local else MAX_SQUARED_TERMS // 10):
+            c2 = pauli_string_codes(h2.x_bits, h2.z_bits)
+            self.squared = (c2, h2.real_if_close().real, np.array([lam.of(c) for c in c2]))
+
+    @classmethod
+    def build(cls, setup, options):
+        return cls(setup) if setup.model is not None else None
+
+    def add(self, chunk):
+        values = term_values(self.codes, self.lam_terms, chunk)
+        energy = values @ self.coeffs
+        self.sums.add("energy", chunk.onehot, energy)
+        self.sums.add("density", chunk.onehot, values @ self.density)
+        if self.setup.multi:
+            self.per_setting.add("energy", chunk.pos, energy[:, None])
+        else:
+            self.sums.add("energy_within", chunk.onehot, energy**2)
+        self.sums.add("energy_sq_snap", chunk.onehot, energy**2)
+        if self.squared is not None:
+            codes2, coeffs2, lam2 = self.squared
+            self.sums.add("h2", chunk.onehot, term_values(codes2, lam2, chunk) @ coeffs2)
+
+    def finish(self):
+        if "energy" in self.per_setting:
+            setup = self.setup
+            within = within_sums(self.per_setting["energy"], setup.setting_block, setup.n_blocks)
+            self.sums.add_blocks("energy_within", within[:, 0])
+
+    def estimates(self, s):
+        count = s["n"]
+        out = {"energy": s["energy"] / count, "energy_density": s["density"] / count}
+        if "h2" in s:
+            mean_sq = (s["energy"] ** 2 - s["energy_within"]) / pair_count(s)
+            out["energy_variance"] = s["h2"] / count - mean_sq
+        return out
+
+    def variables(self, full, err, data, coords):
+        put(data, "energy", (), full["energy"], err)
+        put(data, "energy_density", ("site",), full["energy_density"], err)
+        if "energy_variance" in full:
+            put(data, "energy_variance", (), full["energy_variance"], err)

@@ -1,0 +1,96 @@
+"""The Renyi-2 mutual-information map I2(a:b) = S2(a) + S2(b) - S2(ab) of every site pair.
+
+Local ensemble: every single-site and site-pair purity at once from the
+Gram matrix of one-hot (basis, outcome) words (docs/design.md section 4).
+Circuit ensembles (one shot per setting): two-site Pauli vectors from the
+one-site estimates (exact where light cones do not overlap) and the
+explicit near pairs.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from manybody.estimation.accumulators.base import Accumulator, pair_count
+from manybody.estimation.kernels import words
+from manybody.estimation.pair_sums import mi_purities, mi_purities_paulis, mi_within
+
+#: per-setting joint outcome counts are kept only while settings x (2n)^2 stays below this
+MAX_JOINT_ENTRIES = 2e7
+
+
+class MutualInformation(Accumulator):
+    @classmethod
+    def build(cls, setup, options):
+        if not options.get("mutual_information", True) or not setup.spin_like:
+            return None
+        if setup.local:
+            return LocalMutualInformation(setup)
+        if options.get("correlations", True) and not setup.multi:
+            return CircuitMutualInformation(setup)
+        return None
+
+    def estimates(self, s):
+        purity = self.pair_purities(s)
+        return {} if purity is None else {"mi_purity": purity}
+
+    def variables(self, full, err, data, coords):
+        if "mi_purity" not in full:
+            return
+        n = self.setup.n_qubits
+        coords.setdefault("site_a", np.arange(n))
+        coords.setdefault("site_b", np.arange(n))
+        p, pe = full["mi_purity"], err["mi_purity"]
+        single = np.diag(p)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            s_single = -np.log(single)
+            mi = s_single[:, None] + s_single[None, :] + np.log(p)
+            # delta method, terms treated as independent (a conservative sum in quadrature)
+            se_single = np.diag(pe) / single
+            mi_err = np.sqrt(se_single[:, None] ** 2 + se_single[None, :] ** 2 + (pe / p) ** 2)
+        mi[np.diag_indices(n)] = np.nan
+        mi_err[np.diag_indices(n)] = np.nan
+        data["mutual_information"] = (("site_a", "site_b"), mi)
+        data["mutual_information_err"] = (("site_a", "site_b"), mi_err)
+
+
+class LocalMutualInformation(MutualInformation):
+    def add(self, chunk):
+        n = self.setup.n_qubits
+        w = words(chunk.basis, chunk.bits)
+        oh = np.zeros((len(chunk), 6 * n), dtype=np.float32)  # counts: exact in float32 below 2^24
+        oh[np.arange(len(chunk))[:, None], 6 * np.arange(n) + w] = 1.0
+        self.sums.add_gram("mi_hist", chunk.runs, oh)
+        if self.setup.multi and self.setup.n_settings * (2 * n) ** 2 <= MAX_JOINT_ENTRIES:
+            o2 = np.zeros((len(chunk), 2 * n))
+            o2[np.arange(len(chunk))[:, None], 2 * np.arange(n) + chunk.bits] = 1.0
+            self.per_setting.add("mi_joint", chunk.pos, o2[:, :, None] * o2[:, None, :])
+
+    def finish(self):
+        if "mi_joint" in self.per_setting:
+            setup = self.setup
+            n = setup.n_qubits
+            self.sums.add_blocks("mi_within", mi_within(self.per_setting["mi_joint"], setup.setting_block,
+                                                        setup.n_blocks, n, setup.lam.inv_local(n)))
+
+    def pair_purities(self, s):
+        if self.setup.multi and "mi_within" not in s:
+            return None  # too many settings to keep their joint outcome counts
+        n = self.setup.n_qubits
+        return mi_purities(s, n, self.setup.lam.inv_local(n), pair_count(s), self.setup.multi)
+
+
+class CircuitMutualInformation(MutualInformation):
+    def add(self, chunk):
+        f = chunk.columns
+        flat = f.reshape(len(chunk), -1)
+        self.sums.add("mag", chunk.onehot, f)
+        self.sums.add_gram("corr", chunk.runs, flat)
+        self.sums.add_gram("corr_sq", chunk.runs, flat * flat)
+        if self.setup.near_pairs:
+            vals = chunk.near_values
+            self.sums.add("near", chunk.onehot, vals)
+            self.sums.add("near_sq", chunk.onehot, vals**2)
+
+    def pair_purities(self, s):
+        return mi_purities_paulis(s, self.setup.n_qubits, self.setup.near_pairs, pair_count(s))
