@@ -14,7 +14,7 @@ strings follows from X^a Z^b X^c Z^d = (-1)^(b.c) X^(a+c) Z^(b+d):
 with ``y = popcount(x & z)`` (the number of Y factors).
 
 Each term also carries an *anchor*: the qubits it is attributed to when an
-energy is split into an energy density (DESIGN.md section 4). By default it
+energy is split into an energy density (docs/design.md section 4). By default it
 is the support; a Jordan-Wigner hopping term is anchored to its two orbitals
 rather than to its string of Z factors.
 """
@@ -53,6 +53,71 @@ def unpack_bits(words: np.ndarray, n: int) -> np.ndarray:
 
 def _popcount_rows(words: np.ndarray) -> np.ndarray:
     return np.bitwise_count(words).sum(axis=-1, dtype=np.int64)
+
+
+_PARITY_SIGN = np.array([1.0, -1.0])
+
+
+def _parity_signs(z_masks: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """S[j, r] = (-1)^popcount(z_j & r) for integer z masks and basis-state indices."""
+    return _PARITY_SIGN[np.bitwise_count(z_masks[:, None] & rows[None, :]) & np.uint8(1)]
+
+
+def _group_table(op: "PauliExpansion", dtype):
+    """Strings grouped by x mask: A[g, j] = sum of c_t i^(y_t) (-1)^(z_t.x_t) over the
+    strings t with x mask ux[g] and z mask uz[j] (integer masks, qubit 0 most significant).
+
+    Groups holding a single string come first; returns (A, ux, uz, their number).
+    ``dtype`` None picks float when every i^y c_t is real (a Hermitian sum).
+    """
+    xm, zm = op.integer_masks()
+    phased = op.coeffs * (1j ** (_popcount_rows(op.x & op.z) % 4))
+    if dtype is None:
+        dtype = float if np.all(np.abs(phased.imag) <= 1e-14) else complex
+    dtype = np.dtype(dtype)
+    phased = phased.real.astype(dtype) if dtype.kind == "f" else phased.astype(dtype)
+    ux, xinv = np.unique(xm, return_inverse=True)
+    uz, zinv = np.unique(zm, return_inverse=True)
+    shared = np.bincount(xinv, minlength=len(ux)) > 1
+    order = np.argsort(shared, kind="stable")
+    rank = np.empty_like(order)
+    rank[order] = np.arange(len(order))
+    flip = 1.0 - 2.0 * (np.bitwise_count(xm & zm) & 1)
+    amat = np.zeros((len(ux), len(uz)), dtype=dtype)
+    np.add.at(amat, (rank[xinv], zinv), phased * flip)
+    return amat, ux[order], uz, int(np.count_nonzero(~shared))
+
+
+def _block_values(amat: np.ndarray, low_signs: np.ndarray, uz: np.ndarray, start: int) -> np.ndarray:
+    """Entries of rows start + k (k < block, start a multiple of the power of two block).
+
+    Returns V[k, g] = sum_j A[g, j] S[j, start + k]; since start and k share no
+    bit, S[j, start + k] = S[j, start] S[j, k], and ``low_signs`` holds S[j, k]^T.
+    """
+    high = _parity_signs(uz, np.array([start], dtype=np.uint64))[:, 0]
+    return low_signs @ (amat * high).T
+
+
+def _row_pattern(a_cancel, low_signs, uz, n_lone: int, dim: int):
+    """First pass: CSR row pointers and the nonzero pattern of the groups that may cancel.
+
+    Returns (indptr, pattern) with pattern[r] the bits (np.packbits, one per
+    row of ``a_cancel``) of the nonzero entries of row r among those groups,
+    or None when no group can cancel.
+    """
+    indptr = np.zeros(dim + 1, dtype=np.int64)
+    if len(a_cancel) == 0:
+        indptr[1:] = n_lone
+        np.cumsum(indptr, out=indptr)
+        return indptr, None
+    block = len(low_signs)
+    pattern = np.empty((dim, -(-len(a_cancel) // 8)), dtype=np.uint8)
+    for start in range(0, dim, block):
+        nonzero = _block_values(a_cancel, low_signs, uz, start) != 0
+        pattern[start:start + block] = np.packbits(nonzero, axis=1)
+        indptr[start + 1:start + block + 1] = n_lone + np.count_nonzero(nonzero, axis=1)
+    np.cumsum(indptr, out=indptr)
+    return indptr, pattern
 
 
 def product_phase(x1, z1, x2, z2):
@@ -348,60 +413,51 @@ class PauliExpansion:
             sum_t c_t i^(y_t) (-1)^(z_t.x) (-1)^(z_t.r)    (t with x_t = x).
 
         With S[j, r] = (-1)^(z_j.r) over the distinct z masks, the values of a
-        chunk of rows are one matrix product A @ S. Rows are done twice: once
-        to count the nonzero entries, once to fill arrays of exactly that
-        size, so peak memory stays close to the size of the result. Column
-        indices within a row are left unsorted (scipy sorts on demand).
+        chunk of rows are matrix products S^T A^T. A group of one string never
+        gives a zero; groups of several may cancel. Their nonzero pattern is
+        found in a first pass over the rows and kept as one bit per candidate
+        entry; the second pass fills arrays of exactly that size and takes the
+        structure from those bits, never from a fresh test of the recomputed
+        values, so rounding cannot make the two passes disagree (a recomputed
+        value at a kept position may at worst be an explicit 0.0). Peak memory
+        stays close to the size of the result. Column indices within a row are
+        left unsorted (scipy sorts on demand).
         """
         op = self.combined()
         n = op.n_qubits
         if n > 30:
             raise ValueError(f"{n} qubits are too many for a sparse matrix")
         dim = 1 << n
-        xm, zm = op.integer_masks()
-        phased = op.coeffs * (1j ** (_popcount_rows(op.x & op.z) % 4))
-        if dtype is None:
-            dtype = float if np.all(np.abs(phased.imag) <= 1e-14) else complex
-        phased = phased.real.copy() if dtype is float else phased.astype(dtype)
-        ux, xinv = np.unique(xm, return_inverse=True)
-        uz, zinv = np.unique(zm, return_inverse=True)
-        flip = 1.0 - 2.0 * (np.bitwise_count(xm & zm) & 1)
-        amat = np.zeros((len(ux), len(uz)), dtype=dtype)
-        np.add.at(amat, (xinv, zinv), phased * flip)
-        per_group = np.bincount(xinv, minlength=len(ux))
-        may_cancel = per_group > 1  # a lone string never gives a zero entry
-        n_groups = len(ux)
-
-        sign_of_parity = np.array([1.0, -1.0])
-
-        def signs(rows):
-            return sign_of_parity[np.bitwise_count(rows[None, :] & uz[:, None]) & np.uint8(1)]
-
-        counts = np.full(dim, n_groups, dtype=np.int64)
-        if may_cancel.any():
-            a_cancel = amat[may_cancel]
-            for start in range(0, dim, chunk):
-                rows = np.arange(start, min(start + chunk, dim), dtype=np.uint64)
-                counts[start:start + len(rows)] -= np.count_nonzero(a_cancel @ signs(rows) == 0, axis=0)
-        indptr = np.zeros(dim + 1, dtype=np.int64)
-        np.cumsum(counts, out=indptr[1:])
-        del counts
+        amat, ux, uz, n_lone = _group_table(op, dtype)
+        if len(ux) == 0:
+            return sp.csr_matrix((dim, dim), dtype=amat.dtype)
+        a_lone, a_cancel = amat[:n_lone], amat[n_lone:]
+        # rows per block: a power of two, at most 1/16 of the rows so that temporaries stay small
+        block = 1 << max(0, min(int(chunk).bit_length() - 1, n - 4))
+        low = np.arange(block, dtype=np.uint64)
+        low_signs = np.ascontiguousarray(_parity_signs(uz, low).T)
+        indptr, pattern = _row_pattern(a_cancel, low_signs, uz, n_lone, dim)
         nnz = int(indptr[-1])
-        index_dtype = np.int64 if nnz >= 2**31 else np.int32
-        data = np.empty(nnz, dtype=dtype)
+        index_dtype = np.int64 if max(nnz, dim) >= 2**31 else np.int32
+        data = np.empty(nnz, dtype=amat.dtype)
         indices = np.empty(nnz, dtype=index_dtype)
-        for start in range(0, dim, chunk):
-            rows = np.arange(start, min(start + chunk, dim), dtype=np.uint64)
-            vals = (signs(rows).T @ amat.T).ravel()  # row-major: entries of one row together
-            cols = (rows[:, None] ^ ux[None, :]).ravel()
-            lo, hi = indptr[start], indptr[start + len(rows)]
-            if hi - lo == vals.size:
-                data[lo:hi] = vals
-                indices[lo:hi] = cols
+        low_cols = low.astype(index_dtype)[:, None] ^ ux.astype(index_dtype)[None, :]  # (start + k) ^ x
+        keep = np.ones(low_cols.shape, dtype=bool)
+        for start in range(0, dim, block):
+            # cancelling groups by the same product as in the first pass: a kept entry is 0.0
+            # only if the BLAS rounds differently from one call to the next
+            vals = np.hstack([_block_values(a_lone, low_signs, uz, start),
+                              _block_values(a_cancel, low_signs, uz, start)])
+            lo, hi = indptr[start], indptr[start + block]
+            if hi - lo == vals.size:  # the pattern keeps every entry of these rows
+                data[lo:hi] = vals.ravel()  # row-major: entries of one row together
+                np.bitwise_xor(low_cols.ravel(), start, out=indices[lo:hi])
             else:
-                keep = np.flatnonzero(vals)
-                data[lo:hi] = vals[keep]
-                indices[lo:hi] = cols[keep]
+                keep[:, n_lone:] = np.unpackbits(pattern[start:start + block], axis=1, count=len(a_cancel))
+                kept = np.flatnonzero(keep)
+                np.take(vals.ravel(), kept, out=data[lo:hi])
+                np.take(low_cols.ravel(), kept, out=indices[lo:hi])
+                indices[lo:hi] ^= start
         mat = sp.csr_matrix((data, indices, indptr.astype(index_dtype)), shape=(dim, dim))
         mat.has_sorted_indices = False
         return mat
