@@ -89,8 +89,9 @@ def _open(path) -> xr.Dataset:
         raise InputError(f"{path}: not a manybody state file (attribute file_kind is missing or foreign)")
     version = ds.attrs.get("schema_version")
     if not isinstance(version, (int, np.integer)) or not 1 <= int(version) <= SCHEMA_VERSION:
-        raise InputError(f"{path}: attribute schema_version is {version!r}; this version reads 1 to "
-                         f"{SCHEMA_VERSION}")
+        shown = int(version) if isinstance(version, (int, np.integer)) else repr(version)
+        raise InputError(f"{path}: attribute schema_version is {shown}; this version of manybody reads "
+                         f"state files of schema version 1 to {SCHEMA_VERSION}")
     return ds
 
 
@@ -112,7 +113,7 @@ def read_state(path):
     ds = _open(path)
     kind, n = ds.attrs.get("kind"), ds.attrs.get("n_qubits")
     if not isinstance(n, (int, np.integer)) or n < 1:
-        raise InputError(f"{path}: attribute n_qubits must be a positive integer; got {n!r}")
+        raise InputError(f"{path}: attribute n_qubits must be a positive integer")
     real = ds.attrs.get("value_type") == "real"
     if kind == "dense":
         re = _need(ds, "amplitude_real", path, ("basis_state",))
