@@ -9,16 +9,14 @@ from __future__ import annotations
 import os
 import sys
 
-import numpy as np
-
-from hamiltonians.spec import load_model
+import manybody as mb
 from manybody.errors import InputError
 
 
 def cmd_model(args) -> int:
     from manybody.references.exact import MAX_EXACT_QUBITS, ground_state, ground_state_mps
 
-    model = load_model(args.spec)
+    model = mb.load_model(args.spec)
     spec, lat, ham = model.spec, model.lattice, model.hamiltonian
     params = ", ".join(f"{k} = {v:g}" for k, v in spec.parameters.items())
     units = "spin units (S = sigma/2), converted to Pauli units" if spec.units == "spin" else "Pauli units"
@@ -67,49 +65,24 @@ def progress_bar(args, **kwargs):
 
 
 def cmd_prepare(args) -> int:
-    from manybody.io.shadow import write_shadow
-    from manybody.measure.prepare import prepare_settings
-    from manybody.measure.qasm import write_qasm_files
-
-    if args.settings < 1:
-        raise InputError(f"--settings must be at least 1, got {args.settings}")
-    if args.ensemble == "shallow" and args.depth < 0:
-        raise InputError(f"--depth must be 0 or more, got {args.depth}")
-    model = load_model(args.spec)
-    depth = args.depth if args.ensemble == "shallow" else 0
-    try:
-        shadow = prepare_settings(model, args.ensemble, args.settings, depth, args.seed)
-    except ValueError as exc:
-        raise InputError(f"{args.spec}: {exc}") from None
-    write_shadow(shadow, args.output)
-    print(f"wrote {args.settings} settings ({shadow.ensemble.describe()}, seed {shadow.seed}) to {args.output}")
+    prepared = mb.draw_settings(args.spec, args.ensemble, args.depth, args.settings, args.seed)
+    prepared.to_netcdf(args.output)
+    print(f"wrote {len(prepared)} settings ({prepared.ensemble.describe()}, seed {prepared.seed}) to {args.output}")
     if args.qasm:
-        count = write_qasm_files(shadow.ensemble, shadow.settings, args.qasm,
-                                 progress_bar(args, desc="qasm", unit="file"))
+        count = prepared.to_qasm(args.qasm, progress_bar(args, desc="qasm", unit="file"))
         print(f"wrote {count} OpenQASM 3 files to {args.qasm}")
     return 0
 
 
 def cmd_ingest(args) -> int:
-    from manybody.io.ingest import ingest, parse_labels
     from manybody.io.records import BLOCK_BYTES
-    from manybody.io.shadow import SETTINGS_KIND, SHADOW_KIND, read_shadow
 
-    labels = parse_labels(args.label)
-    settings = read_shadow(args.settings, kinds=(SETTINGS_KIND, SHADOW_KIND)) if args.settings else None
-    model = load_model(args.model) if args.model else None
-    if settings is not None and model is not None and model.n_qubits != settings.n_qubits:
-        raise InputError(f"{args.model}: the model has {model.n_qubits} qubits but {args.settings} "
-                         f"has {settings.n_qubits}")
-    shadow, n_records, n_snapshots = ingest(
-        args.records, args.output, settings, n_qubits=model.n_qubits if model else None,
-        qubit_site=model.qubit_site if model else None, model_spec=model.spec.text if model else "",
-        label=labels, settings_path=args.settings or "the settings file",
-        progress=progress_bar(args, desc="records", unit="block",
-                              total=-(-os.path.getsize(args.records) // BLOCK_BYTES) if os.path.exists(args.records)
-                              else None))
+    size = os.path.getsize(args.records) if os.path.exists(args.records) else None
+    shadow = mb.ingest(args.records, settings=args.settings, model=args.model, label=args.label, out=args.output,
+                       progress=progress_bar(args, desc="records", unit="block",
+                                             total=None if size is None else -(-size // BLOCK_BYTES)))
     label = ", ".join(f"{k} = {v}" for k, v in shadow.label.items())
-    print(f"wrote {n_snapshots} snapshots in {n_records} records over "
+    print(f"wrote {shadow.n_snapshots} snapshots in {shadow.n_records} records over "
           f"{len(shadow.settings)} settings ({shadow.ensemble.kind} ensemble, {shadow.n_qubits} qubits"
           + (f"; {label}" if label else "") + f") to {args.output}")
     return 0
@@ -145,7 +118,7 @@ def cmd_simulate(args) -> int:
     depol = _probability(str(args.depolarizing), "--depolarizing")
     noise = Noise(p01=flips[0], p10=flips[-1], depolarizing=depol)
     times = _times(args.times) if args.times else None
-    model = load_model(args.spec)
+    model = mb.load_model(args.spec)
     depth = args.depth if args.ensemble == "shallow" else 0
     paths = simulate(model, args.state, args.snapshots, args.ensemble, depth, args.shots, times, noise,
                      args.backend, args.bond_dim, args.seed, args.output,
@@ -155,44 +128,32 @@ def cmd_simulate(args) -> int:
     return 0
 
 
-def _model_of(args, shadow, path):
-    from hamiltonians.spec import parse_spec
-
-    if args.model:
-        return load_model(args.model)
-    if shadow.model_spec:
-        return parse_spec(shadow.model_spec, source=f"{path} (stored model spec)").build()
-    return None
-
-
 def cmd_estimate(args) -> int:
     import warnings
 
-    from manybody.estimation.calibration import Calibration, check_same_ensemble
-    from manybody.estimation.driver import estimate, parse_subsystems
     from manybody.io.results import combine_series, write_dataset
-    from manybody.io.shadow import SHADOW_KIND, read_shadow
 
-    shadows = [read_shadow(p, kinds=(SHADOW_KIND,)) for p in args.shadows]
+    shadows = [mb.open_shadow(p) for p in args.shadows]
     calibration = None
     if args.calibration:
-        cal = read_shadow(args.calibration, kinds=(SHADOW_KIND,))
-        for path, shadow in zip(args.shadows, shadows):
+        from manybody.estimation.calibration import Calibration, check_same_ensemble
+
+        cal = mb.open_shadow(args.calibration)
+        for shadow in shadows:
             check_same_ensemble(cal, shadow, args.calibration)
         calibration = Calibration(cal)
     results = []
     for path, shadow in zip(args.shadows, shadows):
-        model = _model_of(args, shadow, path)
-        n_sites = model.n_sites if model is not None else int(np.max(shadow.qubit_site)) + 1
-        subsystems = parse_subsystems(args.subsystems, n_sites)
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", RuntimeWarning)
             try:
-                ds = estimate(shadow, model, subsystems, calibration, n_blocks=args.blocks, method=args.errors,
-                              mutual_information=not args.no_mutual_information,
-                              progress=progress_bar(args, desc=os.path.basename(path), unit="chunk"))
+                ds = mb.estimate(shadow, model=args.model, subsystems=args.subsystems, calibration=calibration,
+                                 errors=args.errors, blocks=args.blocks,
+                                 quantities=None if not args.no_mutual_information else
+                                 ("energy", "correlations", "purity"),
+                                 progress=progress_bar(args, desc=os.path.basename(path), unit="chunk"))
             except InputError as exc:
-                raise InputError(f"{path}: {exc}") from None
+                raise InputError(f"{path}: {exc}", argument=exc.argument) from None
         for w in caught:
             print(f"warning: {path}: {w.message}", file=sys.stderr)
         results.append(ds)
@@ -213,47 +174,23 @@ def _print_summary(path, ds):
 
 
 def cmd_reference(args) -> int:
-    from manybody.estimation.driver import parse_subsystems
-    from manybody.io.results import combine_series, write_dataset
-    from manybody.references.dataset import reference_dataset
-    from manybody.simulation.experiment import prepare_states
+    from manybody.io.results import write_dataset
 
-    model = load_model(args.spec)
-    if model.n_qubits > 20:
-        raise InputError(f"{args.spec}: {model.n_qubits} qubits are too many for the dense reference (at most 20)")
-    subsystems = parse_subsystems(args.subsystems, model.n_sites)
     times = _times(args.times) if args.times else None
-    states = prepare_states(model, args.state, times, "dense")
-    labels = [{} if t is None else {"time": t} for t, _, _ in states]
-    datasets = [reference_dataset(model, psi, subsystems, lab) for (t, psi, _), lab in zip(states, labels)]
-    write_dataset(combine_series(datasets, labels), args.output)
+    write_dataset(mb.reference(args.spec, args.state, times, args.subsystems), args.output)
     print(f"wrote {args.output}")
     return 0
 
 
 def cmd_plan(args) -> int:
-    from manybody.estimation.driver import parse_subsystems
     from manybody.io.results import write_dataset
-    from manybody.io.shadow import SHADOW_KIND, read_shadow
-    from manybody.planning.budget import format_plan, pilot_expectations, plan
+    from manybody.planning.budget import format_plan
 
-    if not args.error > 0:
-        raise InputError(f"--error must be positive, got {args.error}")
     try:
         depths = [int(d) for d in args.depths.split(",") if d.strip()]
     except ValueError:
         raise InputError(f"--depths {args.depths!r}: expected whole numbers separated by commas") from None
-    if not depths or min(depths) < 0:
-        raise InputError(f"--depths {args.depths!r}: expected depths 0 or more")
-    model = load_model(args.spec)
-    expectation = None
-    if args.pilot:
-        pilot = read_shadow(args.pilot, kinds=(SHADOW_KIND,))
-        if pilot.n_qubits != model.n_qubits:
-            raise InputError(f"{args.pilot}: the pilot has {pilot.n_qubits} qubits but the model {model.n_qubits}")
-        expectation = pilot_expectations(pilot)
-    ds = plan(model, args.error, depths, args.distance, parse_subsystems(args.subsystems, model.n_sites),
-              expectation, max(1, args.shots))
+    ds = mb.plan(args.spec, args.error, depths, args.shots, args.subsystems, args.pilot, args.distance)
     print(format_plan(ds))
     if args.output:
         write_dataset(ds, args.output)
@@ -264,7 +201,7 @@ def cmd_plan(args) -> int:
 def cmd_report(args) -> int:
     import xarray as xr
 
-    from manybody.reporting.figures import write_report
+    from manybody.reporting.figures import save_report
 
     def open_results(path):
         if not os.path.exists(path):
@@ -276,7 +213,7 @@ def cmd_report(args) -> int:
 
     results = open_results(args.results)
     reference = open_results(args.reference) if args.reference else None
-    for path in write_report(results, args.output, reference):
+    for path in save_report(mb.report(results, reference), results, args.output, reference):
         print(f"wrote {path}")
     return 0
 

@@ -7,6 +7,7 @@ exit status 2; ``--debug`` shows the traceback instead.
 from __future__ import annotations
 
 import argparse
+import re
 import sys
 
 from hamiltonians.spec import SpecError
@@ -221,6 +222,20 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+#: Python arguments whose command-line name is not --<argument>
+ARGUMENT_NAMES = {"spec": "SPEC.toml", "shadow": "SHADOW.nc", "shadows": "SHADOW.nc", "quantities": "--quantities"}
+
+
+def in_flags(exc) -> str:
+    """The message of a library error, with the Python argument it names replaced by the command-line option."""
+    message = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+    argument = getattr(exc, "argument", None)
+    if not argument:
+        return message
+    flag = ARGUMENT_NAMES.get(argument, "--" + argument.replace("_", "-"))
+    return re.sub(rf"(^|: ){re.escape(argument)}\b", lambda m: m.group(1) + flag, message, count=1)
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     argv = sys.argv[1:] if argv is None else list(argv)
@@ -234,7 +249,7 @@ def main(argv=None) -> int:
     except (InputError, SpecError) as exc:
         if debug:
             raise
-        print(f"error: {exc}", file=sys.stderr)
+        print(f"error: {in_flags(exc)}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)

@@ -11,14 +11,11 @@ from __future__ import annotations
 
 import os
 
-import matplotlib
+import numpy as np
+import xarray as xr
+from matplotlib.figure import Figure
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-import xarray as xr  # noqa: E402
-
-from manybody.io.files import atomic_path  # noqa: E402
+from manybody.io.files import atomic_path
 
 SEQUENTIAL = "viridis"
 DIVERGING = "PuOr_r"
@@ -44,7 +41,8 @@ def _symmetric_limits(values):
 def correlation_map(ds, axis="Z"):
     d = _last(ds)
     c = d.connected_correlation.sel(axis_a=axis, axis_b=axis).values
-    fig, ax = plt.subplots(figsize=(5, 4.2))
+    fig = Figure(figsize=(5, 4.2))
+    ax = fig.subplots()
     lo, hi = _symmetric_limits(c)
     im = ax.imshow(c, cmap=DIVERGING, vmin=lo, vmax=hi, origin="lower")
     ax.set_xlabel("site b")
@@ -59,7 +57,8 @@ def correlation_on_lattice(ds, axis="Z", origin=0):
     d = _last(ds)
     c = d.connected_correlation.sel(axis_a=axis, axis_b=axis, site_a=origin).values.copy()
     c[origin] = np.nan
-    fig, ax = plt.subplots(figsize=(5, 4.2))
+    fig = Figure(figsize=(5, 4.2))
+    ax = fig.subplots()
     lo, hi = _symmetric_limits(c)
     sc = ax.scatter(d.x.values, d.y.values, c=c, cmap=DIVERGING, vmin=lo, vmax=hi, s=260, edgecolors="k")
     ax.scatter([d.x.values[origin]], [d.y.values[origin]], marker="*", s=300, c="k", label=f"site {origin}")
@@ -76,7 +75,8 @@ def correlation_on_lattice(ds, axis="Z", origin=0):
 
 def energy_density_plot(ds, ref=None):
     d = _last(ds)
-    fig, ax = plt.subplots(figsize=(5.5, 3.8))
+    fig = Figure(figsize=(5.5, 3.8))
+    ax = fig.subplots()
     if _is_chain(d):
         ax.errorbar(d.site.values, d.energy_density.values, yerr=d.energy_density_err.values, fmt="o", capsize=3,
                     label="estimate")
@@ -101,7 +101,8 @@ def renyi_profile(ds, ref=None):
     d = _last(ds)
     size = d.subsystem_size.values
     order = np.argsort(size, kind="stable")
-    fig, ax = plt.subplots(figsize=(5.5, 3.8))
+    fig = Figure(figsize=(5.5, 3.8))
+    ax = fig.subplots()
     ax.errorbar(size[order], d.renyi2.values[order], yerr=d.renyi2_err.values[order], fmt="o", capsize=3,
                 label="estimate")
     if ref is not None and "renyi2" in ref:
@@ -118,7 +119,8 @@ def renyi_profile(ds, ref=None):
 def series_plot(ds, ref=None):
     """S2(t) of every subsystem and nearest-neighbour ZZ correlations versus time."""
     t = ds.time.values
-    fig, axes = plt.subplots(1, 2, figsize=(10, 3.8))
+    fig = Figure(figsize=(10, 3.8))
+    axes = fig.subplots(1, 2)
     ax = axes[0]
     if "renyi2" in ds:
         for label in ds.subsystem.values:
@@ -153,7 +155,8 @@ def series_plot(ds, ref=None):
 
 def mutual_information_map(ds):
     d = _last(ds)
-    fig, ax = plt.subplots(figsize=(5, 4.2))
+    fig = Figure(figsize=(5, 4.2))
+    ax = fig.subplots()
     im = ax.imshow(d.mutual_information.values, cmap=SEQUENTIAL, origin="lower")
     ax.set_xlabel("site b")
     ax.set_ylabel("site a")
@@ -203,32 +206,41 @@ def summary_table(ds, ref=None) -> str:
     return "\n".join(rows)
 
 
-def write_report(results: xr.Dataset, out_dir, reference: xr.Dataset | None = None) -> list[str]:
-    """All figures that the dataset allows, plus summary.txt; returns the written paths."""
+def figures(results: xr.Dataset, reference: xr.Dataset | None = None) -> dict:
+    """Every figure the dataset allows, by file name (matplotlib Figure objects, no pyplot state)."""
+    out = {}
+    if "connected_correlation" in results:
+        out["correlation_map.png"] = correlation_map(results)
+        if not _is_chain(results):
+            out["correlation_on_lattice.png"] = correlation_on_lattice(results)
+    if "energy_density" in results:
+        out["energy_density.png"] = energy_density_plot(results, reference)
+    if "renyi2" in results and results.sizes.get("subsystem", 0) > 1:
+        out["renyi2_profile.png"] = renyi_profile(results, reference)
+    if "time" in results.dims:
+        out["series.png"] = series_plot(results, reference)
+    if "mutual_information" in results:
+        out["mutual_information.png"] = mutual_information_map(results)
+    return out
+
+
+def save_report(figs: dict, results: xr.Dataset, out_dir, reference: xr.Dataset | None = None) -> list[str]:
+    """Write the figures (PNG, atomically) and summary.txt into ``out_dir``; returns the written paths."""
     os.makedirs(out_dir, exist_ok=True)
     written = []
-
-    def save(fig, name):
+    for name, fig in figs.items():
         path = os.path.join(out_dir, name)
-        fig.savefig(path, dpi=120)
-        plt.close(fig)
+        with atomic_path(path, ".png") as tmp:
+            fig.savefig(tmp, dpi=120, format="png")
         written.append(path)
-
-    if "connected_correlation" in results:
-        save(correlation_map(results), "correlation_map.png")
-        if not _is_chain(results):
-            save(correlation_on_lattice(results), "correlation_on_lattice.png")
-    if "energy_density" in results:
-        save(energy_density_plot(results, reference), "energy_density.png")
-    if "renyi2" in results and results.sizes.get("subsystem", 0) > 1:
-        save(renyi_profile(results, reference), "renyi2_profile.png")
-    if "time" in results.dims:
-        save(series_plot(results, reference), "series.png")
-    if "mutual_information" in results:
-        save(mutual_information_map(results), "mutual_information.png")
     path = os.path.join(out_dir, "summary.txt")
     with atomic_path(path) as tmp:
         with open(tmp, "w") as fh:
             fh.write(summary_table(results, reference) + "\n")
     written.append(path)
     return written
+
+
+def write_report(results: xr.Dataset, out_dir, reference: xr.Dataset | None = None) -> list[str]:
+    """All figures that the dataset allows, plus summary.txt; returns the written paths."""
+    return save_report(figures(results, reference), results, out_dir, reference)

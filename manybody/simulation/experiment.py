@@ -16,7 +16,7 @@ same seed gives bit-identical files.
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, replace
+from dataclasses import replace
 
 import numpy as np
 
@@ -25,6 +25,7 @@ from manybody.io.shadow import Shadow, ShadowWriter
 from manybody.measure.ensembles import make_ensemble
 from manybody.measure.prepare import coupling_of, fresh_seed
 from manybody.references import exact
+from manybody.simulation.noise import Noise
 from manybody.simulation.sampling import sample_dense, sample_mps
 
 #: the dense backend is the default up to this many qubits.
@@ -33,50 +34,14 @@ SETTINGS_PER_CHUNK = 2048
 NAMED_STATES = ("ground", "neel", "zero", "one", "plus", "minus")
 
 
-@dataclass(frozen=True)
-class Noise:
-    """Readout flips p01 (0 read as 1) and p10 per qubit, and depolarizing probability before measurement.
-
-    Depolarizing a qubit with probability p just before a measurement in
-    any basis randomises its outcome with probability p: a symmetric flip
-    with probability p / 2.
-    """
-
-    p01: np.ndarray | float = 0.0
-    p10: np.ndarray | float = 0.0
-    depolarizing: float = 0.0
-
-    def is_zero(self) -> bool:
-        return not (np.any(self.p01) or np.any(self.p10) or self.depolarizing)
-
-    def apply(self, bits: np.ndarray, rng) -> np.ndarray:
-        if self.is_zero():
-            return bits
-        n = bits.shape[1]
-        half = self.depolarizing / 2
-        flip0 = np.broadcast_to(np.asarray(self.p01, dtype=float), (n,))
-        flip1 = np.broadcast_to(np.asarray(self.p10, dtype=float), (n,))
-        # depolarizing flip, then readout flip: combined flip probability per true bit
-        p_one = np.where(bits == 1, 1 - half, half)  # probability the pre-readout bit is 1
-        u = rng.random(bits.shape)
-        pre = (u < p_one).astype(np.uint8)
-        u = rng.random(bits.shape)
-        flip = np.where(pre == 1, u < flip1, u < flip0)
-        return (pre ^ flip).astype(np.uint8)
-
-    def describe(self) -> dict:
-        return {"readout_p01": np.atleast_1d(self.p01).tolist(), "readout_p10": np.atleast_1d(self.p10).tolist(),
-                "depolarizing": float(self.depolarizing)}
-
-
 def product_letters(state: str, n: int) -> str:
     """One letter per qubit for a named or spelled-out product state."""
     named = {"neel": ("01" * n)[:n], "zero": "0" * n, "one": "1" * n, "plus": "+" * n, "minus": "-" * n}
     if state in named:
         return named[state]
     if len(state) != n or any(c not in "01+-" for c in state):
-        raise InputError(f"--state {state!r}: expected 'ground', a name ({', '.join(NAMED_STATES[1:])}) or "
-                         f"{n} letters from 0, 1, +, -")
+        raise InputError(f"state {state!r}: expected 'ground', a name ({', '.join(NAMED_STATES[1:])}), "
+                         f"{n} letters from 0, 1, +, -, or STATE@SPEC.toml", argument="state")
     return state
 
 
@@ -84,34 +49,78 @@ def choose_backend(model, backend: str) -> str:
     if backend == "auto":
         return "dense" if model.n_qubits <= DENSE_MAX_QUBITS else "mps"
     if backend not in ("dense", "mps"):
-        raise InputError(f"--backend {backend!r}: allowed: auto, dense, mps")
+        raise InputError(f"backend {backend!r}: allowed: auto, dense, mps", argument="backend")
     if backend == "dense" and model.n_qubits > 24:
-        raise InputError(f"{model.n_qubits} qubits are too many for the dense backend (at most 24); use --backend mps")
+        raise InputError(f"{model.n_qubits} qubits are too many for the dense backend (at most 24); use the mps backend", argument="backend")
     return backend
 
 
-def prepare_states(model, state: str, times, backend: str, bond_dim: int = 128):
-    """[(time or None, state, info)]: dense vectors or quimb MPS."""
-    ham = model.hamiltonian
-    n = model.n_qubits
-    info = {}
-    if state == "ground":
-        if backend == "dense":
-            energy, psi = exact.ground_state(ham)
-        else:
-            energy, psi = exact.ground_state_mps(ham, bond_dims=[d for d in (16, 32, 64, 128, 256) if d < bond_dim]
-                                                 + [bond_dim])
-        info["ground_energy"] = energy
-    else:
-        letters = product_letters(state, n)
-        if backend == "dense":
-            psi = exact.product_state(letters)
-        else:
-            import quimb.tensor as qtn
+def initial_state(model, state, backend: str, bond_dim: int = 128):
+    """The state before any evolution, as a dense vector or a quimb MPS, and what is known of it.
 
-            psi = qtn.MPS_product_state([exact.SINGLE_QUBIT_STATES[c] for c in letters])
+    ``state``: "ground" (exact diagonalization up to MAX_EXACT_QUBITS qubits,
+    the same as the references, else DMRG), a product state (name or one
+    letter per qubit), "STATE@SPEC.toml" (that state of another model on the
+    same qubits: the start of a quench), or a state object (numpy vector or
+    quimb MPS).
+    """
+    n = model.n_qubits
+    if not isinstance(state, str):
+        return _state_object(state, n, backend)
+    if "@" in state:
+        from hamiltonians.spec import SpecError, load_model
+
+        name, _, path = state.partition("@")
+        try:
+            start = load_model(path)
+        except SpecError as exc:
+            raise InputError(f"state {state!r}: {exc}", argument="state") from None
+        if start.n_qubits != n:
+            raise InputError(f"state {state!r}: {path} has {start.n_qubits} qubits but the model has {n}",
+                             argument="state")
+        return initial_state(start, name, backend, bond_dim)
+    if state == "ground":
+        if n <= exact.MAX_EXACT_QUBITS:
+            energy, psi = exact.ground_state(model.hamiltonian)
+            info = {"ground_energy": energy, "ground_state_method": "exact diagonalization"}
+            return (psi if backend == "dense" else _to_mps(psi, n)), info
+        energy, psi = exact.ground_state_mps(model.hamiltonian, bond_dims=[d for d in (16, 32, 64, 128, 256)
+                                                                          if d < bond_dim] + [bond_dim])
+        return psi, {"ground_energy": energy, "ground_state_method": "DMRG"}
+    letters = product_letters(state, n)
+    if backend == "dense":
+        return exact.product_state(letters), {}
+    import quimb.tensor as qtn
+
+    return qtn.MPS_product_state([exact.SINGLE_QUBIT_STATES[c] for c in letters]), {}
+
+
+def _to_mps(psi, n):
+    import quimb.tensor as qtn
+
+    return qtn.MatrixProductState.from_dense(np.asarray(psi, dtype=complex), dims=[2] * n)
+
+
+def _state_object(psi, n, backend):
+    if isinstance(psi, np.ndarray):
+        if psi.shape != (2**n,):
+            raise InputError(f"state: a vector of {2**n} amplitudes was expected for {n} qubits, "
+                             f"got shape {psi.shape}", argument="state")
+        psi = psi / np.linalg.norm(psi)
+        return (psi if backend == "dense" else _to_mps(psi, n)), {}
+    if getattr(psi, "L", None) != n:
+        raise InputError(f"state: expected a numpy vector or a quimb MPS on {n} sites", argument="state")
+    if backend == "dense":
+        return np.asarray(psi.to_dense()).ravel(), {}
+    return psi, {}
+
+
+def prepare_states(model, state, times, backend: str, bond_dim: int = 128):
+    """[(time or None, state, info)]: dense vectors or quimb MPS, evolved under the model to ``times``."""
+    psi, info = initial_state(model, state, backend, bond_dim)
     if times is None:
         return [(None, psi, info)]
+    ham = model.hamiltonian
     if backend == "dense":
         states = exact.evolve(ham, psi, times)
         return [(float(t), s, dict(info)) for t, s in zip(times, states)]
@@ -137,51 +146,88 @@ def output_paths(output: str, times) -> list[str]:
     return [os.path.join(output, f"shadow_t{t:.4g}.nc") for t in times]
 
 
+def simulate_shadows(model, state, n_snapshots: int | None = None, ensemble_kind: str = "local", depth: int = 0,
+                     shots: int = 1, times=None, noise: Noise = Noise(), backend: str = "auto",
+                     bond_dim: int = 128, seed: int | None = None, settings=None, progress=None):
+    """Simulated randomized measurements of a state, one shadow per time: yields (header, record chunks).
+
+    The header is a Shadow without records (ensemble, settings, label and
+    metadata); the record chunks (setting ids, outcome bits, counts) are
+    produced lazily so that a writer can stream them. ``settings`` (drawn
+    beforehand, with their ensemble) replaces the draw. Seeds: one
+    SeedSequence per run, spawned into the settings draw and one child per
+    time, each spawned again per chunk of settings.
+    """
+    shots = int(shots)
+    if shots < 1 or (n_snapshots is not None and n_snapshots < 1):
+        raise InputError("snapshots and shots must be at least 1", argument="snapshots")
+    backend = choose_backend(model, backend)
+    seed = fresh_seed() if seed is None else int(seed)
+    root = np.random.SeedSequence(seed)
+    settings_seed, *time_seeds = root.spawn(1 + (1 if times is None else len(times)))
+    if settings is None:
+        ens = make_ensemble(ensemble_kind, model.n_qubits, depth, coupling_of(model))
+        drawn = ens.draw(-(-n_snapshots // shots), np.random.default_rng(settings_seed))
+    else:  # PreparedSettings, or a Shadow read from a settings file
+        ens, drawn = settings.ensemble, getattr(settings, "settings", settings)
+        n_snapshots = len(drawn) * shots if n_snapshots is None else n_snapshots
+    if backend == "mps" and ens.kind == "global":
+        raise InputError(f"the global ensemble needs the dense backend (at most {DENSE_MAX_QUBITS} qubits by default)",
+                         argument="ensemble")
+    header = Shadow(ensemble=ens, settings=drawn, qubit_site=model.qubit_site, model_spec=model.spec.text,
+                    seed=seed, source="simulated by manybody simulate")
+    for (t, psi, info), tseed in zip(prepare_states(model, state, times, backend, bond_dim), time_seeds):
+        meta = {"simulated": True, "backend": backend, "state": state if isinstance(state, str) else "given",
+                "shots_per_setting": shots, "state_energy": state_energy(model, psi), **noise.describe(), **info}
+        if backend == "mps":
+            meta["bond_dim"] = bond_dim
+        label = {} if t is None else {"time": t}
+        yield replace(header, label=label, metadata=meta), _records(psi, ens, drawn, shots, n_snapshots, noise,
+                                                                   backend, bond_dim, tseed, meta, progress)
+
+
+def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, seed, meta, progress):
+    """Record chunks (ids, bits, counts) of one state; the largest MPS discarded weight goes into ``meta``."""
+    n_settings = len(settings)
+    chunk_seeds = seed.spawn(-(-n_settings // SETTINGS_PER_CHUNK))
+    written = 0
+    starts = range(0, n_settings, SETTINGS_PER_CHUNK)
+    for start, cseed in zip(progress(starts) if progress else starts, chunk_seeds):
+        rng = np.random.default_rng(cseed)
+        part = settings.take(slice(start, start + SETTINGS_PER_CHUNK))
+        if backend == "dense":
+            bits = sample_dense(psi, ens, part, shots, rng)
+        else:
+            bits, lost = sample_mps(psi, ens, part, shots, rng, max_bond=bond_dim)
+            if not ens.is_local:
+                meta["discarded_weight"] = max(meta.get("discarded_weight", 0.0), lost)
+        bits = noise.apply(bits, rng)
+        ids = np.repeat(part.ids, shots)
+        keep = min(len(ids), n_snapshots - written)
+        yield ids[:keep], bits[:keep], np.ones(keep, dtype=np.int64)
+        written += keep
+
+
 def simulate(model, state: str, n_snapshots: int, ensemble_kind: str = "local", depth: int = 0,
              shots: int = 1, times=None, noise: Noise = Noise(), backend: str = "auto", bond_dim: int = 128,
              seed: int | None = None, output: str = "shadow.nc", progress=None) -> list[str]:
     """Simulate randomized measurements of a state and write shadow files; returns the paths."""
-    if n_snapshots < 1 or shots < 1:
-        raise InputError("--snapshots and --shots must be at least 1")
-    backend = choose_backend(model, backend)
-    if backend == "mps" and ensemble_kind == "global":
-        raise InputError("the global ensemble needs the dense backend (at most "
-                         f"{DENSE_MAX_QUBITS} qubits by default)")
-    seed = fresh_seed() if seed is None else int(seed)
-    root = np.random.SeedSequence(seed)
-    settings_seed, *time_seeds = root.spawn(1 + (1 if times is None else len(times)))
-    ens = make_ensemble(ensemble_kind, model.n_qubits, depth, coupling_of(model))
-    n_settings = -(-n_snapshots // shots)
-    settings = ens.draw(n_settings, np.random.default_rng(settings_seed))
-    header = Shadow(ensemble=ens, settings=settings, qubit_site=model.qubit_site, model_spec=model.spec.text,
-                    seed=seed, source="simulated by manybody simulate")
-    states = prepare_states(model, state, times, backend, bond_dim)
+    runs = simulate_shadows(model, state, n_snapshots, ensemble_kind, depth, shots, times, noise, backend,
+                            bond_dim, seed, progress=progress)
     paths = output_paths(output, times)
-    for (t, psi, info), path, tseed in zip(states, paths, time_seeds):
-        chunk_seeds = tseed.spawn(-(-n_settings // SETTINGS_PER_CHUNK))
-        discarded = 0.0
+    for (header, records), path in zip(runs, paths):
         with ShadowWriter(path) as out:
-            written = 0
-            starts = range(0, n_settings, SETTINGS_PER_CHUNK)
-            for start, cseed in zip(progress(starts) if progress else starts, chunk_seeds):
-                rng = np.random.default_rng(cseed)
-                part = settings.take(slice(start, start + SETTINGS_PER_CHUNK))
-                if backend == "dense":
-                    bits = sample_dense(psi, ens, part, shots, rng)
-                else:
-                    bits, lost = sample_mps(psi, ens, part, shots, rng, max_bond=bond_dim)
-                    discarded = max(discarded, lost)
-                bits = noise.apply(bits, rng)
-                ids = np.repeat(part.ids, shots)
-                keep = min(len(ids), n_snapshots - written)
-                out.append(ids[:keep], bits[:keep], np.ones(keep, dtype=np.int64))
-                written += keep
-            meta = {"simulated": True, "backend": backend, "state": state, "shots_per_setting": shots,
-                    "state_energy": state_energy(model, psi), **noise.describe(), **info}
-            if backend == "mps":
-                meta["bond_dim"] = bond_dim
-                if ens.kind == "shallow":
-                    meta["discarded_weight"] = discarded
-            label = {} if t is None else {"time": t}
-            out.finish(replace(header, label=label, metadata=meta))
+            for ids, bits, counts in records:
+                out.append(ids, bits, counts)
+            out.finish(header)
     return paths
+
+
+def simulate_in_memory(*args, **kwargs) -> list:
+    """The shadows of :func:`simulate_shadows` with their records in memory (numpy arrays)."""
+    out = []
+    for header, records in simulate_shadows(*args, **kwargs):
+        parts = list(records)
+        ids, bits, counts = (np.concatenate([p[i] for p in parts]) for i in range(3))
+        out.append(header.with_records(ids, bits, counts))
+    return out
