@@ -2,28 +2,43 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 
 import numpy as np
 
 from manybody.errors import InputError
+from manybody.io.files import refuse_overwrite
 from manybody.io.records import read_records
 from manybody.io.shadow import Shadow, ShadowWriter
 from manybody.measure.ensembles import LocalEnsemble, Settings, basis_strings
 
 
 def parse_labels(items) -> dict:
-    """``KEY=VALUE`` strings -> dict; numeric values become floats."""
+    """``KEY=VALUE`` strings -> dict; finite numeric values become floats; ``time`` must be one."""
     out = {}
     for item in items or ():
         key, sep, value = item.partition("=")
         if not sep or not key.strip():
             raise InputError(f"--label {item!r}: expected KEY=VALUE, for example time=0.5")
         try:
-            out[key.strip()] = float(value)
+            number = float(value)
         except ValueError:
+            number = None
+        if number is not None and math.isfinite(number):
+            out[key.strip()] = number
+        elif key.strip() == "time":
+            raise InputError(f"--label {item!r}: time must be a finite number, for example time=0.5")
+        else:
             out[key.strip()] = value.strip()
     return out
+
+
+def _total(counts) -> int:
+    """Sum of counts as an exact Python integer (an int64 sum could wrap for counts near 10^15)."""
+    if len(counts) == 0 or int(counts.max()) * len(counts) < 2**63:
+        return int(counts.sum())
+    return int(counts.astype(object).sum())
 
 
 class _SettingBases:
@@ -100,6 +115,7 @@ def ingest(path, output, settings: Shadow | None = None, n_qubits: int | None = 
     must agree with it. Returns (shadow header without records, number of
     records, number of snapshots).
     """
+    refuse_overwrite(output, [path, getattr(settings, "origin", None) or None])
     kind = settings.ensemble.kind if settings is not None else "local"
     if settings is not None:
         n_qubits = settings.n_qubits
@@ -121,7 +137,7 @@ def ingest(path, output, settings: Shadow | None = None, n_qubits: int | None = 
                 known.check(block)
             out.append(block.setting, block.outcome, block.count)
             n_records += len(block.count)
-            n_snapshots += int(block.count.sum())
+            n_snapshots += _total(block.count)
         if qubit_site is not None and len(qubit_site) != n_qubits:
             raise InputError(f"{path}: the records have {n_qubits} qubits but the model has {len(qubit_site)}")
         if settings is None:

@@ -5,13 +5,20 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from manybody.io.files import atomic_path
+from manybody.io.files import GuardedFile, atomic_path
 
 
 def write_dataset(ds: xr.Dataset, path) -> None:
-    """netCDF-4 (h5netcdf) through a temporary file and a rename: nothing half-written."""
-    with atomic_path(path, ".nc") as tmp:
-        ds.to_netcdf(tmp, engine="h5netcdf")
+    """netCDF-4 (h5netcdf) through a temporary file and a rename: nothing half-written.
+
+    A failed write (disk full, read-only folder, a folder named as the
+    file) raises InputError("cannot write PATH: ...") and leaves no
+    temporary file; an existing file at ``path`` stays as it was.
+    """
+    with atomic_path(path, ".nc") as tmp:  # OSError inside becomes InputError, temporary removed
+        with GuardedFile(open(tmp, "r+b", buffering=0), path) as sink:  # HDF5 never meets the failure
+            ds.to_netcdf(sink, engine="h5netcdf")
+        sink.raise_failure()
 
 
 def combine_series(datasets, labels) -> xr.Dataset:

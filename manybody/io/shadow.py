@@ -1,4 +1,4 @@
-"""Shadow and settings files (DESIGN.md section 8): netCDF-4 through xarray and h5netcdf.
+"""Shadow and settings files (docs/design.md section 8, docs/formats.md): netCDF-4 through xarray and h5netcdf.
 
 A *settings file* holds what was drawn: the ensemble, one entry per setting
 (basis string, gate indices or tableau), the coupling graph and the qubit
@@ -19,13 +19,17 @@ Layout (dimensions in brackets):
                                          is bit q % 8 (least significant first) of byte q // 8;
                                          0 = +1 eigenvalue. Unpack with
                                          numpy.unpackbits(outcome, axis=1, bitorder="little")[:, :n]
-    count [record]                       uint32 shots with this outcome
+    count [record]                       uint64 shots with this outcome, at most 10^15 - 1
+                                         (older files hold uint32; both are read)
 
 Attributes: ``file_kind`` ("manybody settings" or "manybody shadow"),
 ``schema_version``, ``ensemble``, ``depth``, ``n_qubits``, ``model_spec``
 (TOML text), ``label`` (JSON object, e.g. {"time": 0.5}), ``metadata``
 (JSON object: noise, truncation, ...), ``seed``, ``source``, ``created``,
-``tool_version``. Writes are atomic (temporary file, then rename).
+``tool_version``. Writes are atomic (temporary file, then rename); a
+failed write (disk full, read-only folder) is an InputError and leaves no
+temporary file. Reading checks attributes and settings when the file is
+opened and the records chunk by chunk (:mod:`manybody.io.validate`).
 """
 
 from __future__ import annotations
@@ -41,7 +45,8 @@ import xarray as xr
 
 from manybody import __version__
 from manybody.errors import InputError
-from manybody.io.files import settle, temporary_beside
+from manybody.io import validate as check
+from manybody.io.files import GuardedFile, discard, settle, temporary_beside, write_error
 from manybody.measure.ensembles import GlobalEnsemble, LocalEnsemble, Settings, ShallowEnsemble
 
 SCHEMA_VERSION = 1
@@ -70,6 +75,7 @@ class Shadow:
     seed: int | None = None
     source: str = ""
     packed: bool = False
+    origin: str = ""  # the file it was read from, for messages
 
     @property
     def n_qubits(self) -> int:
@@ -81,28 +87,43 @@ class Shadow:
 
     @property
     def n_snapshots(self) -> int:
-        return 0 if self.counts is None else int(np.asarray(self.counts).sum(dtype=np.int64))
+        if self.counts is None:
+            return 0
+        lookup, total = check.RecordCheck(np.zeros(0), self.origin), 0
+        for start in range(0, self.n_records, 1 << 20):
+            counts = lookup.counts(self.counts[start:start + (1 << 20)], start)
+            exact = len(counts) == 0 or int(counts.max()) * len(counts) < 2**63  # int64 sum cannot wrap
+            total += int(counts.sum()) if exact else int(counts.astype(object).sum())
+        return total
+
+    def _checked(self, size: int, outcomes: bool = True):
+        """(setting ids, positions in ``settings``, outcomes or None, counts) per chunk, ids and counts checked."""
+        lookup = check.RecordCheck(self.settings.ids, self.origin)
+        for start in range(0, self.n_records, size):
+            sl = slice(start, start + size)
+            ids = np.asarray(self.record_setting[sl])
+            positions = lookup.positions(ids, start)
+            counts = lookup.counts(self.counts[sl], start)
+            bits = None
+            if outcomes:
+                bits = np.asarray(self.outcomes[sl], dtype=np.uint8)
+                if self.packed:
+                    bits = unpack_outcomes(bits, self.n_qubits)
+            yield ids.astype(np.int64, copy=False), positions, bits, counts
 
     def records(self, size: int = 1 << 16):
         """Yield (setting ids, outcomes, counts) as numpy arrays, ``size`` records at a time."""
-        for start in range(0, self.n_records, size):
-            sl = slice(start, start + size)
-            outcomes = np.asarray(self.outcomes[sl], dtype=np.uint8)
-            if self.packed:
-                outcomes = unpack_outcomes(outcomes, self.n_qubits)
-            yield (np.asarray(self.record_setting[sl], dtype=np.int64), outcomes,
-                   np.asarray(self.counts[sl], dtype=np.int64))
+        for ids, _, bits, counts in self._checked(size):
+            yield ids, bits, counts
 
     def chunks(self, size: int = 1 << 16):
-        """Yield (setting positions in ``settings``, outcomes, counts), ``size`` records at a time."""
-        ids = np.asarray(self.settings.ids)
-        order = np.argsort(ids, kind="stable")
-        identity = np.array_equal(ids, np.arange(len(ids)))
-        for setting_ids, outcomes, counts in self.records(size):
-            if identity:
-                yield setting_ids, outcomes, counts
-            else:
-                yield order[np.searchsorted(ids[order], setting_ids)], outcomes, counts
+        """Yield (setting positions in ``settings``, outcomes, counts), ``size`` records at a time.
+
+        Raises InputError at the first record whose setting is not in the
+        settings or whose count is negative or above 10^15 - 1.
+        """
+        for _, positions, bits, counts in self._checked(size):
+            yield positions, bits, counts
 
     def snapshots(self) -> tuple[np.ndarray, np.ndarray]:
         """All snapshots in memory, one row each: (setting positions, outcome bits); counts expanded."""
@@ -182,8 +203,13 @@ class ShadowWriter:
     def __enter__(self):
         import h5netcdf
 
-        self._tmp = temporary_beside(self.path, ".nc")
-        self._file = h5netcdf.File(self._tmp, "w")
+        self._tmp = temporary_beside(self.path, ".nc")  # InputError when the folder cannot be written
+        try:  # HDF5 writes through a guarded file: a full disk cannot leave it in a state that crashes
+            self._sink = GuardedFile(open(self._tmp, "r+b", buffering=0), self.path)
+            self._file = h5netcdf.File(self._sink, "w")
+        except OSError as exc:
+            discard(self._tmp)
+            raise write_error(self.path, exc) from None
         self._pool = ThreadPoolExecutor(max_workers=1)  # h5py releases the GIL while compressing
         self._pending = []
         return self
@@ -202,26 +228,36 @@ class ShadowWriter:
                                 chunks=(c, f.dimensions["outcome_byte"].size), **opts)
         var.attrs["meaning"] = ("outcome bits packed 8 to a byte, qubit q at bit q % 8 (least significant "
                                 "first) of byte q // 8; bit 0 = +1 eigenvalue of the measured Pauli")
-        f.create_variable("count", ("record",), dtype="u4", chunks=(c,), **opts)
+        f.create_variable("count", ("record",), dtype="u8", chunks=(c,), **opts)
 
     def append(self, setting_ids, outcomes, counts) -> None:
         """Queue records for writing; a background thread compresses and writes them in order."""
         outcomes = np.asarray(outcomes, dtype=np.uint8)
-        if self._records == 0 and "outcome" not in self._file.variables:
-            self._create_records(outcomes.shape[1])
+        counts = np.asarray(counts)
+        if len(counts) and (counts.min() < 0 or counts.max() > check.MAX_COUNT):
+            raise ValueError(f"counts must lie between 0 and {check.MAX_COUNT}")
+        try:
+            if self._records == 0 and "outcome" not in self._file.variables:
+                self._create_records(outcomes.shape[1])
+        except OSError as exc:
+            raise write_error(self.path, exc) from None
         start, stop = self._records, self._records + len(outcomes)
         self._records = stop
         while len(self._pending) >= 2:  # bounded: memory stays flat
             self._pending.pop(0).result()
         self._pending.append(self._pool.submit(
             self._write, start, stop, np.asarray(setting_ids, dtype=np.int64), pack_outcomes(outcomes),
-            np.asarray(counts, dtype=np.uint32)))
+            counts.astype(np.uint64)))
 
     def _write(self, start, stop, setting_ids, packed, counts):
-        self._file.resize_dimension("record", stop)
-        self._file.variables["record_setting"][start:stop] = setting_ids
-        self._file.variables["outcome"][start:stop] = packed
-        self._file.variables["count"][start:stop] = counts
+        try:
+            self._file.resize_dimension("record", stop)
+            self._file.variables["record_setting"][start:stop] = setting_ids
+            self._file.variables["outcome"][start:stop] = packed
+            self._file.variables["count"][start:stop] = counts
+        except OSError as exc:  # disk full, quota, I/O error
+            raise write_error(self.path, exc) from None
+        self._sink.raise_failure()
 
     def _drain(self):
         while self._pending:
@@ -230,9 +266,17 @@ class ShadowWriter:
     def finish(self, shadow: Shadow, with_records: bool | None = None) -> None:
         """Write the settings and attributes; records must all have been appended."""
         self._drain()
-        f = self._file
         if with_records is None:
             with_records = self._records > 0 or shadow.counts is not None
+        try:
+            self._write_settings(shadow, with_records)
+        except OSError as exc:
+            raise write_error(self.path, exc) from None
+        self._sink.raise_failure()
+        self._finished = True
+
+    def _write_settings(self, shadow: Shadow, with_records: bool) -> None:
+        f = self._file
         if with_records and "outcome" not in f.variables:
             self._create_records(shadow.n_qubits)
         data = _settings_variables(shadow)
@@ -249,20 +293,31 @@ class ShadowWriter:
         kind = SHADOW_KIND if with_records else SETTINGS_KIND
         for key, value in _attrs(shadow, kind, self.created).items():
             f.attrs[key] = value
-        self._finished = True
 
     def __exit__(self, exc_type, exc, tb):
         ok = exc_type is None and self._finished
+        failure = None
         try:
             self._drain()
-        except BaseException:
-            ok = False
-            if exc_type is None:
-                raise
+        except BaseException as err:  # a write that failed in the background
+            ok, failure = False, err
         finally:
             self._pool.shutdown(wait=True)
-            self._file.close()
-            settle(self._tmp, self.path, keep=ok)
+            try:
+                self._file.close()  # flushes through the guarded file, which keeps any failure
+            except Exception as err:  # noqa: BLE001 - h5py raises OSError or RuntimeError here
+                failure = failure or write_error(self.path, err)
+            self._sink.close()
+            try:
+                self._sink.raise_failure()
+            except BaseException as err:
+                failure = failure or err
+            if ok and failure is None:
+                settle(self._tmp, self.path, keep=True)  # InputError (and no temporary) if the rename fails
+            else:
+                discard(self._tmp)
+        if exc_type is None and failure is not None:
+            raise failure
         if exc_type is None and not self._finished:
             raise RuntimeError("ShadowWriter closed without finish(): nothing was written")
         return False
@@ -283,71 +338,91 @@ def open_dataset_checked(path, kinds=(SHADOW_KIND, SETTINGS_KIND)) -> xr.Dataset
     path = os.fspath(path)
     if not os.path.exists(path):
         raise InputError(f"{path}: no such file")
+    if os.path.isdir(path):
+        raise InputError(f"{path}: is a folder; expected a netCDF-4 file")
     try:
         ds = xr.open_dataset(path, engine="h5netcdf", cache=False)
-    except Exception as exc:  # h5py and xarray raise many kinds for broken files
+    except Exception as exc:  # noqa: BLE001 - h5py and xarray raise many kinds for broken files
         raise InputError(f"{path}: not a readable netCDF-4 file ({type(exc).__name__}: "
                          f"{str(exc).splitlines()[0] if str(exc) else 'no detail'})") from None
-    kind = ds.attrs.get("file_kind")
-    if kind not in (SHADOW_KIND, SETTINGS_KIND):
+    try:
+        _check_kind(ds.attrs, path, kinds)
+    except BaseException:
         ds.close()
-        raise InputError(f"{path}: not a manybody file (attribute file_kind is missing or foreign)")
-    version = int(ds.attrs.get("schema_version", -1))
-    if version > SCHEMA_VERSION:
-        ds.close()
-        raise InputError(f"{path}: written with schema version {version} by a newer manybody; "
-                         f"this version reads up to schema version {SCHEMA_VERSION}")
-    if version < 1:
-        ds.close()
-        raise InputError(f"{path}: attribute schema_version is missing or invalid")
-    if kind not in kinds:
-        ds.close()
-        want = " or ".join(kinds)
-        raise InputError(f"{path}: is a {kind} file, expected a {want} file")
+        raise
     return ds
 
 
-def _need(ds, name, path):
-    if name not in ds.variables:
-        raise InputError(f"{path}: variable {name!r} is missing")
-    return ds[name]
+def _check_kind(attrs, path, kinds) -> None:
+    kind = attrs.get("file_kind")
+    if not isinstance(kind, str) or kind not in (SHADOW_KIND, SETTINGS_KIND):
+        raise InputError(f"{path}: not a manybody file (attribute file_kind is missing or foreign)")
+    if "schema_version" not in attrs:
+        raise InputError(f"{path}: attribute schema_version is missing")
+    version = attrs["schema_version"]
+    if isinstance(version, (int, np.integer)) and not isinstance(version, (bool, np.bool_)) \
+            and version > SCHEMA_VERSION:
+        raise InputError(f"{path}: written with schema version {version} by a newer manybody; "
+                         f"this version reads up to schema version {SCHEMA_VERSION}")
+    check.int_attr(attrs, "schema_version", path, 1, SCHEMA_VERSION)
+    if kind not in kinds:
+        want = " or ".join(kinds)
+        raise InputError(f"{path}: is a {kind} file, expected a {want} file")
+
+
+def _ensemble_and_settings(ds, path):
+    """The ensemble and its settings from the attributes and settings variables, all checked."""
+    attrs = ds.attrs
+    n = check.int_attr(attrs, "n_qubits", path, 1, check.MAX_QUBITS)
+    kind = check.text_attr(attrs, "ensemble", path)
+    if kind not in ("local", "shallow", "global"):
+        raise InputError(f"{path}: attribute ensemble is {kind!r}; allowed: local, shallow, global")
+    ids = check.setting_ids(ds, path)
+    if kind == "local":
+        ens = LocalEnsemble(n)
+    elif kind == "shallow":
+        depth = check.int_attr(attrs, "depth", path, 0, 10_000)
+        ens = ShallowEnsemble(n, depth, check.coupling(ds, path, n))
+        try:
+            gate_qubits = ens.gate_qubits
+        except ValueError as exc:
+            raise InputError(f"{path}: attribute depth is {depth} but variable coupling does not allow it "
+                             f"({exc})") from None
+        if not np.array_equal(gate_qubits, check.variable(ds, "gate_qubits", path, ("slot", "pair"))):
+            raise InputError(f"{path}: gate_qubits do not match the layers of the stored coupling graph")
+    else:
+        ens = GlobalEnsemble(n)
+    arrays = check.settings_arrays(ds, path, kind, n, len(ids), len(getattr(ens, "gate_qubits", ())))
+    return ens, Settings(ids, **arrays)
 
 
 def read_shadow(path, kinds=(SHADOW_KIND, SETTINGS_KIND)) -> Shadow:
-    """Read settings eagerly and records lazily (see :meth:`Shadow.chunks`)."""
+    """Read settings eagerly and records lazily (see :meth:`Shadow.chunks`).
+
+    Attributes and settings are checked here; record ids and counts are
+    checked chunk by chunk as they are read. Every problem is an InputError
+    naming the variable or attribute.
+    """
     path = os.fspath(path)
     ds = open_dataset_checked(path, kinds)
     try:
-        n = int(ds.attrs["n_qubits"])
-        kind = ds.attrs["ensemble"]
-        ids = _need(ds, "setting_id", path).values
-        if kind == "local":
-            ens = LocalEnsemble(n)
-            st = Settings(ids, basis=_need(ds, "basis", path).values)
-        elif kind == "shallow":
-            ens = ShallowEnsemble(n, int(ds.attrs["depth"]), _need(ds, "coupling", path).values)
-            st = Settings(ids, basis=_need(ds, "basis", path).values, gates=_need(ds, "gate", path).values)
-            if not np.array_equal(ens.gate_qubits, _need(ds, "gate_qubits", path).values):
-                raise InputError(f"{path}: gate_qubits do not match the layers of the stored coupling graph")
-        elif kind == "global":
-            ens = GlobalEnsemble(n)
-            st = Settings(ids, tableau_x=_need(ds, "tableau_x", path).values,
-                          tableau_z=_need(ds, "tableau_z", path).values,
-                          tableau_sign=_need(ds, "tableau_sign", path).values)
-        else:
-            raise InputError(f"{path}: unknown ensemble {kind!r}; allowed: local, shallow, global")
-        seed = ds.attrs.get("seed", "")
+        ens, st = _ensemble_and_settings(ds, path)
+        attrs = ds.attrs
         shadow = Shadow(
-            ensemble=ens, settings=st, qubit_site=_need(ds, "qubit_site", path).values,
-            model_spec=str(ds.attrs.get("model_spec", "")), label=json.loads(ds.attrs.get("label", "{}")),
-            metadata=json.loads(ds.attrs.get("metadata", "{}")), seed=int(seed) if seed else None,
-            source=str(ds.attrs.get("source", "")))
-        if ds.attrs["file_kind"] == SHADOW_KIND:
-            shadow = shadow.with_records(_need(ds, "record_setting", path).variable,
-                                         _need(ds, "outcome", path).variable, _need(ds, "count", path).variable,
-                                         packed=True)
+            ensemble=ens, settings=st, qubit_site=check.qubit_site(ds, path, ens.n_qubits),
+            model_spec=check.text_attr(attrs, "model_spec", path, default=""),
+            label=check.check_label(check.json_attr(attrs, "label", path, finite=True), path),
+            metadata=check.json_attr(attrs, "metadata", path, finite=False), seed=check.seed_attr(attrs, path),
+            source=check.text_attr(attrs, "source", path, default=""), origin=path)
+        if attrs["file_kind"] == SHADOW_KIND:
+            check.record_layout(ds, path, ens.n_qubits)
+            shadow = shadow.with_records(ds["record_setting"].variable, ds["outcome"].variable,
+                                         ds["count"].variable, packed=True)
         return shadow
     except InputError:
+        ds.close()
         raise
-    except (KeyError, ValueError) as exc:
-        raise InputError(f"{path}: damaged manybody file ({exc})") from None
+    except (KeyError, ValueError, TypeError, OSError) as exc:
+        ds.close()
+        raise InputError(f"{path}: damaged manybody file ({type(exc).__name__}: "
+                         f"{str(exc).splitlines()[0] if str(exc) else 'no detail'})") from None
