@@ -3,6 +3,7 @@
 import numpy as np
 import stim
 
+from hamiltonians.spec import parse_spec
 from manybody.io.shadow import Shadow
 from manybody.measure.clifford import clifford_table
 from manybody.simulation.sampling import sample_dense
@@ -13,6 +14,14 @@ STIM_GATE = {"h": "H", "s": "S", "sdg": "S_DAG", "x": "X", "y": "Y", "z": "Z", "
 
 # stim PauliString entries: 0 I, 1 X, 2 Y, 3 Z; our one-qubit codes: 0 I, 1 X, 2 Z, 3 Y
 STIM_TO_CODE = {0: 0, 1: 1, 2: 3, 3: 2}
+
+
+TFIM = '[lattice]\nkind = "chain"\nsize = [{n}]\n[model]\nkind = "tfim"\nJ = 1.0\nh = 0.8\n'
+
+
+def tfim_model(n):
+    """A transverse-field Ising chain of n sites (J = 1, h = 0.8), open boundaries."""
+    return parse_spec(TFIM.format(n=n), "tfim.toml").build()
 
 
 def chain(n):

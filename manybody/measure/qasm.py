@@ -11,8 +11,8 @@ from manybody.measure.paulis import BASIS_LETTERS
 _STIM_TO_QASM = {"H": "h", "S": "s", "S_DAG": "sdg", "X": "x", "Y": "y", "Z": "z", "CX": "cx"}
 
 
-def tableau_gates(tableau_x, tableau_z, tableau_sign):
-    """Gate list of an n-qubit Clifford tableau, synthesised by stim (Gaussian elimination)."""
+def tableau_of(tableau_x, tableau_z, tableau_sign):
+    """The stim.Tableau of a stored n-qubit Clifford (images of X_0, Z_0, X_1, Z_1, ... with signs)."""
     import stim
 
     n = tableau_x.shape[-1]
@@ -20,9 +20,14 @@ def tableau_gates(tableau_x, tableau_z, tableau_sign):
     def pauli(x, z, s):
         return stim.PauliString(("-" if s < 0 else "+") + "".join("_XZY"[a + 2 * b] for a, b in zip(x, z)))
 
-    tab = stim.Tableau.from_conjugated_generators(
+    return stim.Tableau.from_conjugated_generators(
         xs=[pauli(tableau_x[2 * q], tableau_z[2 * q], tableau_sign[2 * q]) for q in range(n)],
         zs=[pauli(tableau_x[2 * q + 1], tableau_z[2 * q + 1], tableau_sign[2 * q + 1]) for q in range(n)])
+
+
+def tableau_gates(tableau_x, tableau_z, tableau_sign):
+    """Gate list of an n-qubit Clifford tableau, synthesised by stim (Gaussian elimination)."""
+    tab = tableau_of(tableau_x, tableau_z, tableau_sign)
     ops = []
     for inst in tab.to_circuit("elimination"):
         name = _STIM_TO_QASM[inst.name]

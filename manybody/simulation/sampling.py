@@ -24,6 +24,8 @@ from manybody.simulation.statevector import BASIS_ROTATIONS, apply_unitary
 
 #: dense batches are kept below this many complex amplitudes.
 DENSE_BATCH_AMPLITUDES = 1 << 18
+#: global Cliffords up to this many qubits are applied as dense unitaries built by stim
+GLOBAL_UNITARY_QUBITS = 8
 
 
 def sample_rows(probs: np.ndarray, shots: int, rng) -> np.ndarray:
@@ -68,7 +70,14 @@ def rotate_dense(states, ensemble, settings: Settings, start: int):
         table = clifford_table(2)
         for slot, (qa, qb) in enumerate(ensemble.gate_qubits.tolist()):
             states = _apply_batched(states, table.unitaries[settings.gates[sel, slot]], (qa, qb), n)
-    if settings.tableau_x is not None:  # global Cliffords, gate by gate
+    if settings.tableau_x is not None and n <= GLOBAL_UNITARY_QUBITS:  # global Cliffords as matrices (stim)
+        from manybody.measure.qasm import tableau_of
+
+        for row in range(b):
+            k = start + row
+            tab = tableau_of(settings.tableau_x[k], settings.tableau_z[k], settings.tableau_sign[k])
+            states[row] = tab.to_unitary_matrix(endian="big") @ states[row]
+    elif settings.tableau_x is not None:  # larger global Cliffords, gate by gate
         from manybody.measure.clifford import gate_matrix
 
         for row in range(b):

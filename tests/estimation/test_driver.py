@@ -22,17 +22,13 @@ from manybody.measure.propagation import snapshot_values
 from manybody.references import exact
 from manybody.references.dataset import reference_dataset
 from manybody.simulation.experiment import Noise
-from tests.helpers import make_shadow, within
-
-TFIM = '[lattice]\nkind = "chain"\nsize = [{n}]\n[model]\nkind = "tfim"\nJ = 1.0\nh = 0.8\n'
+from tests.helpers import make_shadow, tfim_model, within
 
 
 def chain_edges(n):
     return np.array([(i, i + 1) for i in range(n - 1)])
 
 
-def tfim_model(n):
-    return parse_spec(TFIM.format(n=n), "tfim.toml").build()
 
 
 ENSEMBLES = {

@@ -22,9 +22,15 @@ def test_periodic_coordination(kind, size, nn, nnn):
     assert set(lat.coordination("bonds")) == {nn}
     assert set(lat.coordination("next_bonds")) == {nnn}
     assert len(lat.bonds) == lat.n_sites * nn // 2
-    # nearest bonds all have unit length (minimum image)
+    # nearest bonds all have unit length (lattice spacing 1, common practice, no source), measured
+    # between the nearest periodic images of the two sites
     disp = lat.positions[lat.bonds[:, 1]] - lat.positions[lat.bonds[:, 0]]
-    assert np.all(np.isclose(np.linalg.norm(disp, axis=1), 1.0) | (lat.boundary[0] == "periodic"))
+    shifts = np.array(np.meshgrid(*[[-1, 0, 1]] * len(size))).reshape(len(size), -1).T
+    images = (shifts * np.array(size)) @ lat.vectors
+    lengths = np.linalg.norm(disp[:, None, :] + images[None, :, :], axis=2).min(axis=1)
+    assert np.allclose(lengths, 1.0)
+    # and so do the bond orientations, unit vectors by construction
+    assert np.allclose(np.linalg.norm(lat.bond_orientation, axis=1), 1.0)
 
 
 def test_open_chain_and_ladder_counts():
