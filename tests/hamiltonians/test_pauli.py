@@ -4,7 +4,7 @@ from functools import reduce
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from hamiltonians.pauli import PauliExpansion, pack_bits, unpack_bits
@@ -112,3 +112,164 @@ def test_bad_strings():
         PauliExpansion.from_strings(["XQ"])
     with pytest.raises(ValueError, match="same length"):
         PauliExpansion.from_strings(["X", "XX"])
+
+
+# ------------------------------------------------- sparse matrices with cancellations
+# Coefficients whose sums cancel exactly or only up to rounding (0.1 + 0.2 - 0.3 != 0 in
+# binary floating point): where to_sparse once counted and filled a row differently.
+UNITS = [0.1, 0.3, 0.7, 1 / 3]
+MULTIPLES = [-2, -1, 1, 2, 3]
+TRICKY = [0.1, 0.2, -0.3, 0.6, -0.7, 1e-3, 1.0]
+SAME_X = {"I": "Z", "Z": "I", "X": "Y", "Y": "X"}  # toggles the z bit, keeps the x bit
+
+
+def toggled(s, toggles):
+    return "".join(SAME_X[ch] if t else ch for ch, t in zip(s, toggles))
+
+
+@st.composite
+def cancelling_sums(draw):
+    """A Pauli sum with one large group of strings sharing an x mask (coefficients: small
+    multiples of one unit, so that many rows sum to zero exactly or up to rounding), a few
+    other strings, and pairs c, -c on strings of equal x mask."""
+    n = draw(st.integers(3, 7))
+    base = draw(st.text(alphabet="IXYZ", min_size=n, max_size=n))
+    unit = draw(st.sampled_from(UNITS))
+    toggles = st.lists(st.booleans(), min_size=n, max_size=n)
+    group = draw(st.lists(st.tuples(toggles, st.sampled_from(MULTIPLES)), min_size=4, max_size=12))
+    terms = [(toggled(base, t), unit * m) for t, m in group]
+    others = draw(st.lists(st.tuples(st.text(alphabet="IXYZ", min_size=n, max_size=n),
+                                     st.sampled_from(TRICKY), st.sampled_from([1, 1j]),
+                                     st.one_of(st.none(), toggles)), max_size=6))
+    for s, c, phase, partner in others:
+        terms.append((s, c * phase))
+        if partner is not None:  # -c on another string of the same x mask
+            terms.append((toggled(s, partner), -c * phase))
+    return n, terms
+
+
+def openfermion_matrix(strings, coeffs, n):
+    """openfermion.get_sparse_operator of the QubitOperator written directly from the strings.
+
+    openfermion's qubit 0 is the first (leftmost) Kronecker factor, i.e. the most
+    significant bit of the basis index, as ours (openfermion qubit_operator_sparse).
+    """
+    from openfermion import QubitOperator, get_sparse_operator
+
+    op = QubitOperator()
+    for s, c in zip(strings, coeffs):
+        op += QubitOperator(" ".join(f"{ch}{q}" for q, ch in enumerate(s) if ch != "I"), c)
+    return get_sparse_operator(op, n_qubits=n)
+
+
+def quimb_matrix(strings, coeffs):
+    """Sum of quimb.kron products of quimb.pauli sparse matrices (qubit 0 leftmost)."""
+    import quimb as qu
+
+    return sum(c * qu.kron(*[qu.pauli(ch, sparse=True) for ch in s]) for s, c in zip(strings, coeffs))
+
+
+CHAIN4_TERMS = (4, [("ZZII", 0.6), ("IZZI", 0.6), ("IIZZ", 0.6), ("ZIII", -0.3), ("IZII", -0.3),
+                    ("IIZI", -0.3), ("IIIZ", -0.3), ("XXII", 0.7), ("IXXI", 0.7), ("IIXX", 0.7),
+                    ("XIII", 0.1), ("IXII", 0.1), ("IIXI", 0.1), ("IIIX", 0.1)])
+
+
+@settings(max_examples=80, deadline=None)
+@given(cancelling_sums(), st.sampled_from([1, 4, 1 << 13]))
+# found by this test (1000 examples) against the former two-pass to_sparse, which crashed
+@example((5, [("YYYYI", -0.2), ("YYYYI", 0.1), ("YYXXI", -0.2), ("YXYYZ", 0.1 * 3), ("YXXXI", -0.1),
+              ("YXXYI", -0.1), ("XYYYI", -0.2)]), 4)
+@example(CHAIN4_TERMS, 1 << 13)  # the custom chain below
+def test_sparse_with_cancellations_matches_openfermion_and_quimb(data, chunk):
+    n, terms = data
+    strings, coeffs = zip(*terms)
+    mat = PauliExpansion.from_strings(strings, coeffs).to_sparse(chunk=chunk)
+    mat.check_format(full_check=True)
+    canonical = mat.copy()
+    canonical.sum_duplicates()
+    assert canonical.nnz == mat.nnz  # one stored entry per (row, column)
+    ours = mat.toarray()
+    # entry by entry; the references round differently, hence the tolerance
+    assert np.abs(ours - openfermion_matrix(strings, coeffs, n).toarray()).max() < 1e-12
+    assert np.abs(ours - quimb_matrix(strings, coeffs).toarray()).max() < 1e-12
+
+
+CHAIN4_SPEC = """
+[lattice]
+kind = "chain"
+size = [4]
+boundary = "open"
+
+[model]
+kind = "custom"
+
+[[model.term]]
+pauli = "ZZ"
+on = "bonds"
+coefficient = 0.6
+
+[[model.term]]
+pauli = "Z"
+on = "sites"
+coefficient = -0.3
+
+[[model.term]]
+pauli = "XX"
+on = "bonds"
+coefficient = 0.7
+
+[[model.term]]
+pauli = "X"
+on = "sites"
+coefficient = 0.1
+"""
+
+
+def test_custom_chain_with_cancelling_diagonal_builds():
+    # regression: these terms made to_sparse crash with a numpy broadcast error
+    import scipy.linalg
+    import scipy.sparse.linalg as spla
+
+    from hamiltonians.spec import parse_spec
+
+    ham = parse_spec(CHAIN4_SPEC, "chain4.toml").build().hamiltonian
+    ref = kron_matrix(ham.strings(), ham.coeffs)
+    mat = ham.to_sparse()
+    assert np.abs(mat.toarray() - ref).max() < 1e-12
+    # ground energy: scipy's dense eigvalsh of the Kronecker-built matrix
+    e0 = spla.eigsh(mat, k=1, which="SA", v0=np.ones(16), tol=1e-12)[0][0]
+    assert abs(e0 - scipy.linalg.eigvalsh(ref)[0]) < 1e-10
+
+
+def tfim_chain(n, J, h, boundary):
+    from hamiltonians import build_lattice
+    from hamiltonians.models import tfim
+
+    return tfim(build_lattice("chain", [n], boundary=boundary), J=J, h=h)
+
+
+@pytest.mark.parametrize("n, J, h, boundary", [(8, -1.0, 0.7, "open"), (8, 1.0, 0.3, "periodic"),
+                                               (10, 1.0, 0.1, "open")])
+def test_tfim_square_matches_dense_square(n, J, h, boundary):
+    # regression: (H*H).combined() had an entry off by 28.9 (n=8 open) or crashed (periodic)
+    ham = tfim_chain(n, J, h, boundary)
+    dense = kron_matrix(ham.strings(), ham.coeffs)
+    square = (ham * ham).combined().to_sparse()
+    assert np.abs(square.toarray() - dense @ dense).max() < 1e-9
+
+
+def test_quench_energy_variance_is_conserved():
+    # <H^2> - <H>^2 is conserved under exp(-iHt) (H commutes with itself). From |0...0>,
+    # H|0..0> = E0|0..0> + (field) sum_i |flip i>, so the variance is n h^2 at every time
+    # (elementary quantum mechanics). Evolution: scipy expm_multiply.
+    from scipy.sparse.linalg import expm_multiply
+
+    n, h = 8, 0.7
+    ham = tfim_chain(n, -1.0, h, "open")
+    mat, square = ham.to_sparse(), (ham * ham).combined().to_sparse()
+    psi0 = np.zeros(2**n, dtype=complex)
+    psi0[0] = 1.0
+    states = expm_multiply(-1j * mat, psi0, start=0.0, stop=2.0, num=9, endpoint=True)
+    energy = np.einsum("ti,ti->t", states.conj(), (mat @ states.T).T).real
+    second = np.einsum("ti,ti->t", states.conj(), (square @ states.T).T).real
+    assert np.abs(second - energy**2 - n * h**2).max() < 1e-9
