@@ -205,7 +205,7 @@ class ShadowWriter:
 
         self._tmp = temporary_beside(self.path, ".nc")  # InputError when the folder cannot be written
         try:  # HDF5 writes through a guarded file: a full disk cannot leave it in a state that crashes
-            self._sink = GuardedFile(open(self._tmp, "r+b", buffering=0), self.path)
+            self._sink = GuardedFile(self._open_raw(self._tmp), self.path)
             self._file = h5netcdf.File(self._sink, "w")
         except OSError as exc:
             discard(self._tmp)
@@ -213,6 +213,11 @@ class ShadowWriter:
         self._pool = ThreadPoolExecutor(max_workers=1)  # h5py releases the GIL while compressing
         self._pending = []
         return self
+
+    @staticmethod
+    def _open_raw(tmp):
+        """The real file under the guarded one (unbuffered: every failure reaches the guard at once)."""
+        return open(tmp, "r+b", buffering=0)
 
     def _create_records(self, n_qubits: int):
         f = self._file
