@@ -5,7 +5,7 @@ sites in the unit cell. Bonds are found by distance shells: the nearest
 bonds join sites at the shortest distance, the next-nearest bonds sites at
 the second shortest. Periodic directions wrap; open directions cut.
 
-Site ``q`` is qubit ``q`` (DESIGN.md section 2). Sites are numbered cell by
+Site ``q`` is qubit ``q`` (docs/design.md section 2). Sites are numbered cell by
 cell, row by row (``y`` outer, ``x`` inner, basis site innermost); with
 ``order="snake"`` every odd row runs backwards, which keeps neighbours close
 in a one-dimensional (MPS) ordering.

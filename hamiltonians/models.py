@@ -1,4 +1,4 @@
-"""Lattice models as Pauli sums, in Pauli (sigma) units (DESIGN.md section 2).
+"""Lattice models as Pauli sums, in Pauli (sigma) units (docs/design.md section 2).
 
 Every spin model acts on one qubit per site (qubit q = site q). The
 Fermi-Hubbard model acts on two qubits per site: qubit 2i is site i spin

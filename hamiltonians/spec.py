@@ -1,4 +1,4 @@
-"""The TOML model spec (INTERFACE.md): read, validate, build.
+"""The TOML model spec (docs/formats.md): read, validate, build.
 
     [lattice]
     kind = "chain"          # chain, ladder, square, triangular, honeycomb, kagome

@@ -1,4 +1,4 @@
-"""Error bars from per-block partial sums (DESIGN.md section 5).
+"""Error bars from per-block partial sums (docs/design.md section 5).
 
 Snapshots of one setting are correlated, so blocks are made of whole
 settings. Every estimator is a function of additive sums; the delete-one-

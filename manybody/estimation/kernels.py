@@ -1,4 +1,4 @@
-"""Estimator kernels: arrays in, arrays out, snapshots first (DESIGN.md section 4).
+"""Estimator kernels: arrays in, arrays out, snapshots first (docs/design.md section 4).
 
 Single-snapshot Pauli estimates are o_P = <b|U P U^dagger|b> / lambda_P
 (Huang, Kueng, Preskill, Nat. Phys. 16, 1050 (2020)). Every kernel here
@@ -78,7 +78,7 @@ def histogram_pair_sum(hist: np.ndarray, factors) -> float:
     """sum_{i,j} prod_q F_q(w_iq, w_jq) from the histogram of words (all pairs, i = j included).
 
     The histogram tensor (6,)*k is multiplied by F_q on every axis, then
-    contracted with itself: cost O(k 6^(k+1)) (DESIGN.md section 4).
+    contracted with itself: cost O(k 6^(k+1)) (docs/design.md section 4).
     """
     k = len(factors)
     t = hist.reshape((6,) * k) if k else hist.reshape(())

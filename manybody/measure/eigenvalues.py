@@ -1,4 +1,4 @@
-"""Channel eigenvalues lambda_P of the measurement ensembles (DESIGN.md section 3).
+"""Channel eigenvalues lambda_P of the measurement ensembles (docs/design.md section 3).
 
 For every ensemble here the shadow channel is diagonal in the Pauli basis,
 M(P) = lambda_P P, and lambda_P is the probability that the random Clifford

@@ -1,4 +1,4 @@
-"""Budget planning (DESIGN.md section 6): snapshots needed per depth for a target error.
+"""Budget planning (docs/design.md section 6): snapshots needed per depth for a target error.
 
 Per snapshot the estimator of a Pauli P has variance 1/lambda_P - <P>^2 for
 these Clifford ensembles. Without knowing the state the planner uses the

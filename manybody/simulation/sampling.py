@@ -2,7 +2,7 @@
 
 Every sampler takes the ensemble, its settings and a number of shots per
 setting, and returns outcome bits (K * shots, n) ordered setting by setting.
-The measured basis rotation of DESIGN.md section 2 (X: H; Y: S^dagger then H)
+The measured basis rotation of docs/design.md section 2 (X: H; Y: S^dagger then H)
 is applied before a computational-basis measurement.
 
 - Dense: a batch of settings is held as a (B, 2^n) array; per-setting gates

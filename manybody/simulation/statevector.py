@@ -6,7 +6,7 @@ import numpy as np
 
 from manybody.measure.clifford import _H, _S
 
-#: rotation applied before a Z measurement to measure X, Y, Z (DESIGN.md section 2):
+#: rotation applied before a Z measurement to measure X, Y, Z (docs/design.md section 2):
 #: X: H; Y: S^dagger then H; Z: nothing.
 BASIS_ROTATIONS = np.array([_H, _H @ _S.conj(), np.eye(2)])
 

@@ -84,7 +84,7 @@ def test_ghz_and_maximally_mixed_subsystems():
 
 def test_purity_algorithms_agree_on_the_same_data():
     # Histogram (6^|A| words) = pair counts (O(N^2)) = Pauli-vector form, to rounding
-    # (DESIGN.md section 4: the three are the same sum over pairs of snapshots).
+    # (docs/design.md section 4: the three are the same sum over pairs of snapshots).
     n = 5
     model = tfim_model(n)
     _, psi = exact.ground_state(model.hamiltonian)
@@ -236,7 +236,7 @@ def depth_errors(depths, n=8, snapshots=20000):
 
 
 def test_depth_trade_off_predicted_by_eigenvalues():
-    # Per-snapshot variance 1/lambda - <P>^2 (DESIGN.md section 6): deeper circuits lower lambda of a
+    # Per-snapshot variance 1/lambda - <P>^2 (docs/design.md section 6): deeper circuits lower lambda of a
     # nearest-neighbour pair but raise it for a contiguous weight-10 string (fast sibling of the test below).
     chain = chain_edges(12)
     nn = [ShallowEnsemble(12, d, chain).eigenvalue([5, 6]) for d in (0, 1, 2, 3)]

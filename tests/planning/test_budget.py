@@ -32,7 +32,7 @@ def test_predicted_errors_match_observed_spread():
     # 50 independent shadows per depth, N = 1500 snapshots: the standard deviation of the
     # estimates matches the planner's prediction sqrt(var / N) within 25% for the
     # nearest-neighbour ZZ correlation (exact per-snapshot variance 1/lambda - <P>^2,
-    # DESIGN.md section 6) and for the energy (covariances between terms included) at depths 0-2.
+    # docs/design.md section 6) and for the energy (covariances between terms included) at depths 0-2.
     model, psi, expectation = setup()
     n_snap, eps = 1500, 0.1
     ds = plan(model, eps, depths=(0, 1, 2), distance=1, expectation=expectation)
