@@ -203,12 +203,3 @@ def clifford_table(n: int) -> CliffordTable:
     conj_code, conj_sign = conjugation_table(images, signs, n)
     return CliffordTable(n, images, signs, us, words, conj_code, conj_sign)
 
-
-def pair_code(code_a, code_b):
-    """Two-qubit code from one-qubit codes."""
-    return code_a + 4 * code_b
-
-
-def split_code(code):
-    """One-qubit codes (a, b) of a two-qubit code."""
-    return code & 3, code >> 2
