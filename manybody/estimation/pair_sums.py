@@ -77,6 +77,16 @@ def pair_count_jackknife(pair_count, blocks, qubits_of):
     return full, err
 
 
+def correlation_matrix(s, n, near_pairs, gram="corr", near="near"):
+    """Summed products (3, n, 3, n) from the Gram sums, near pairs replaced by their explicit sums."""
+    corr = s[gram].reshape(3, n, 3, n).copy()
+    if near in s:
+        for j, (a, b) in enumerate(near_pairs):
+            corr[:, a, :, b] = s[near][j]
+            corr[:, b, :, a] = s[near][j].T
+    return corr
+
+
 def mi_purities_paulis(s, n, near_pairs, pairs):
     """Single-site (diagonal) and two-site purities from Pauli-vector sums, one shot per setting.
 
@@ -86,12 +96,8 @@ def mi_purities_paulis(s, n, near_pairs, pairs):
     """
     count = s["n"]
     mag = s["mag"]  # (3, n)
-    corr = s["corr"].reshape(3, n, 3, n).copy()
-    squares = s["corr_sq"].reshape(3, n, 3, n).copy()
-    if "near" in s:
-        for j, (a, b) in enumerate(near_pairs):
-            corr[:, a, :, b], corr[:, b, :, a] = s["near"][j], s["near"][j].T
-            squares[:, a, :, b], squares[:, b, :, a] = s["near_sq"][j], s["near_sq"][j].T
+    corr = correlation_matrix(s, n, near_pairs)
+    squares = correlation_matrix(s, n, near_pairs, "corr_sq", "near_sq")
     m2 = np.sum(mag**2, axis=0)  # (n,)
     own = np.einsum("xaxa->a", s["corr"].reshape(3, n, 3, n))  # sum_i f_ia^2 over axes
     vv = count**2 + m2[:, None] + m2[None, :] + np.einsum("xayb,xayb->ab", corr, corr)

@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from manybody.estimation.accumulators.base import Accumulator, pair_count, put
+from manybody.estimation.pair_sums import correlation_matrix
 from manybody.estimation.sums import within_sums
 from manybody.schema import reciprocal_points, structure_factor, structure_factor_coords
 
@@ -81,12 +82,3 @@ class Correlations(Accumulator):
             coords.update(structure_factor_coords(self.reciprocal))
             put(data, "structure_factor", ("axis", "q"), full["structure_factor"], err)
 
-
-def correlation_matrix(s, n, near_pairs, gram="corr", near="near"):
-    """Summed products (3, n, 3, n) from the Gram sums, near pairs replaced by their explicit sums."""
-    corr = s[gram].reshape(3, n, 3, n).copy()
-    if near in s:
-        for j, (a, b) in enumerate(near_pairs):
-            corr[:, a, :, b] = s[near][j]
-            corr[:, b, :, a] = s[near][j].T
-    return corr
