@@ -27,7 +27,7 @@ sums: the Paulis of A supported in B are those of B, so all sums are also kept
 per support pattern and added over the subsets of B.
 
 Generators: the images U X_q U^dagger, U Z_q U^dagger (q in A) come from the
-propagation tables (:mod:`manybody.measure.propagation`); a product of them is
+propagation tables (``Ensemble.final_paulis``, :mod:`manybody.measure.propagation`); a product of them is
 seen by the final computational-basis measurement iff it commutes with the
 measured Pauli on every qubit, a linear condition over GF(2) whose kernel is
 G_A (Gaussian elimination, vectorised over settings). Pauli codes on A: one
@@ -46,7 +46,6 @@ import numpy as np
 
 from hamiltonians.pauli import product_phase
 from manybody.measure.paulis import BASIS_PAULI
-from manybody.measure.propagation import propagate_layers
 
 #: the Pauli vector on A is a dense array of 4^|A| entries up to this many qubits, sparse beyond.
 DENSE_MAX_QUBITS = 10
@@ -119,15 +118,11 @@ def _generator_images(ensemble, settings, qubits):
     px = np.zeros((k, 2 * len(qubits), n), dtype=np.uint8)
     pz = np.zeros_like(px)
     signs = np.ones((k, 2 * len(qubits)), dtype=np.int8)
-    circuit = ensemble.kind == "shallow" and settings.gates is not None and settings.gates.shape[1]
     for t, q in enumerate(np.asarray(qubits).tolist()):
         for j, code in ((2 * t, 1), (2 * t + 1, 2)):
             codes = np.zeros(n, dtype=np.uint8)
             codes[q] = code
-            if circuit:
-                final, signs[:, j] = propagate_layers(codes, settings.gates, ensemble.gate_qubits)
-            else:
-                final = np.broadcast_to(codes, (k, n))
+            final, signs[:, j] = ensemble.final_paulis(codes, settings)  # light-cone table look-ups
             px[:, j], pz[:, j] = final & 1, final >> 1
     measured = BASIS_PAULI[settings.basis][:, None, :]  # (K, 1, n)
     bx, bz = measured & 1, measured >> 1
