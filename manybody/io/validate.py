@@ -87,7 +87,7 @@ def json_attr(attrs, name: str, where: str, finite: bool) -> dict:
     text = text_attr(attrs, name, where, default="{}")
     allowed = f"a JSON object nested at most {MAX_JSON_DEPTH} deep"
     try:
-        value = json.loads(text, parse_constant=_refuse_constant)
+        value = json.loads(text, parse_constant=_refuse_constant) if finite else json.loads(text)
     except RecursionError:
         raise InputError(f"{where}: attribute {name} is nested too deeply; allowed: {allowed}") from None
     except ValueError as exc:
