@@ -41,17 +41,93 @@ def expectation(op: PauliExpansion, psi: np.ndarray) -> float | complex:
 def pauli_expectations(ops: PauliExpansion, psi: np.ndarray) -> np.ndarray:
     """<psi|P_t|psi> for every string of ``ops`` (coefficients ignored).
 
-    P|c> = i^y (-1)^(z.c) |c ^ x>, so <psi|P|psi> = sum_r conj(psi_r) i^y (-1)^(z.(r^x)) psi_(r^x).
+    P|c> = i^y (-1)^(z.c) |c ^ x>, so <psi|P|psi> = i^y sum_r w_r (-1)^(z.(r^x)) with
+    w_r = conj(psi_r) psi_(r^x): one gather per distinct flip mask x, one parity per string.
     """
     xm, zm = ops.integer_masks()
-    ny = _popcount_rows(ops.x & ops.z)
+    phase = 1j ** (_popcount_rows(ops.x & ops.z) % 4)
     rows = np.arange(len(psi), dtype=np.uint64)
     out = np.empty(len(ops), dtype=complex)
-    for t in range(len(ops)):
-        col = rows ^ xm[t]
-        sign = 1.0 - 2.0 * (np.bitwise_count(col & zm[t]) & 1)
-        out[t] = (1j ** (ny[t] % 4)) * np.vdot(psi, sign * psi[col])
+    flips, group = np.unique(xm, return_inverse=True)
+    for g, x in enumerate(flips):
+        cols = rows ^ x
+        w = np.conj(psi) * psi[cols]
+        total = w.sum()
+        for t in np.flatnonzero(group == g):
+            odd = (np.bitwise_count(cols & zm[t]) & np.uint8(1)).view(bool)
+            out[t] = phase[t] * (total - 2 * np.sum(w, where=odd))
     return out.real if np.all(np.abs(out.imag) < 1e-12) else out
+
+
+def apply_pauli_sum(ops: PauliExpansion, psi: np.ndarray) -> np.ndarray:
+    """H psi without building a matrix, one gather per distinct flip mask x.
+
+    (P_t psi)_r = i^(y_t) (-1)^(z_t.(r^x_t)) psi_(r^x_t), so the strings that
+    share x act as one diagonal d_x(r) = sum_t c_t i^(y_t) (-1)^(z_t.(r^x))
+    times the permuted vector psi_(r^x).
+    """
+    op = ops.combined()
+    xm, zm = op.integer_masks()
+    phased = op.coeffs * (1j ** (_popcount_rows(op.x & op.z) % 4))
+    rows = np.arange(len(psi), dtype=np.uint64)
+    out = np.zeros(len(psi), dtype=complex)
+    flips, group = np.unique(xm, return_inverse=True)
+    for g, x in enumerate(flips):
+        cols = rows ^ x
+        diag = np.zeros(len(psi), dtype=complex)
+        for t in np.flatnonzero(group == g):
+            diag += phased[t] * (1.0 - 2.0 * (np.bitwise_count(cols & zm[t]) & 1))
+        out += diag * psi[cols]
+    return out
+
+
+def energy_variance(ham: PauliExpansion, psi: np.ndarray) -> float:
+    """<H^2> - <H>^2 = ||(H - E) psi||^2 with E = <psi|H|psi> (one application of H; never negative)."""
+    h_psi = apply_pauli_sum(ham, psi)
+    energy = np.vdot(psi, h_psi).real
+    return float(np.linalg.norm(h_psi - energy * psi) ** 2)
+
+
+#: sigma^x, sigma^y, sigma^z stacked (axis, row, column)
+PAULI_MATRICES = np.array([_SIGMA["X"], _SIGMA["Y"], _SIGMA["Z"]])
+
+
+def local_pauli_moments(psi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """<sigma^a_q> (3, n) and <sigma^a_q sigma^b_r> (3, 3, n, n; NaN where q = r) of a dense state.
+
+    With phi_(a,q) = sigma^a_q psi, <sigma^a_q sigma^b_r> = <phi_(a,q)|phi_(b,r)>
+    for q != r (the two Paulis commute and are Hermitian): every two-point
+    function is one entry of the Gram matrix of the 3n vectors phi, one
+    matrix product. Memory 3 n 2^n complex numbers.
+    """
+    psi = np.asarray(psi, dtype=complex)
+    n = int(np.log2(len(psi)))
+    phi = np.empty((3, n, len(psi)), dtype=complex)
+    sign = np.array([1.0, -1.0])[None, :, None]
+    for q in range(n):  # X flips qubit q, Z signs it, Y = -i Z X (qubit q is axis 1 of the block)
+        block = psi.reshape(2**q, 2, -1)
+        phi[0, q] = block[:, ::-1].ravel()
+        phi[1, q] = (-1j * sign * block[:, ::-1]).ravel()
+        phi[2, q] = (sign * block).ravel()
+    flat = phi.reshape(3 * n, -1).view(float)  # Re<a|b> = a_re.b_re + a_im.b_im: one real matrix product
+    mag = (flat @ psi.view(float)).reshape(3, n)
+    gram = (flat @ flat.T).reshape(3, n, 3, n).transpose(0, 2, 1, 3)
+    corr = np.array(gram)
+    corr[:, :, np.arange(n), np.arange(n)] = np.nan
+    return mag, corr
+
+
+def subsystem_purity(psi: np.ndarray, sites) -> float:
+    """tr rho_A^2 from psi reshaped to a (2^|A|, 2^(n-|A|)) matrix M: tr (M M^+)^2 = tr (M^+ M)^2.
+
+    The smaller of the two Gram matrices is formed (reshape and transpose only).
+    """
+    n = int(np.log2(len(psi)))
+    sites = [int(q) for q in sites]
+    rest = [q for q in range(n) if q not in sites]
+    m = np.transpose(np.asarray(psi).reshape((2,) * n), sites + rest).reshape(2 ** len(sites), -1)
+    gram = m @ m.conj().T if m.shape[0] <= m.shape[1] else m.conj().T @ m
+    return float(np.sum(np.abs(gram) ** 2))
 
 
 def reduced_density_matrix(psi: np.ndarray, sites) -> np.ndarray:
@@ -130,7 +206,6 @@ def mps_half_purity(mps, cut: int) -> float:
 
 def local_ham_1d(ham: PauliExpansion):
     """quimb LocalHam1D of a Pauli sum with only one- and nearest-neighbour two-qubit terms."""
-    import quimb.tensor as qtn
 
     op = ham.combined()
     sup = op.support
@@ -151,20 +226,56 @@ def local_ham_1d(ham: PauliExpansion):
         else:
             raise ValueError(f"term {s} is not a nearest-neighbour term along the qubit order; "
                              "TEBD needs a chain Hamiltonian")
-    return qtn.LocalHam1D(ham.n_qubits, H2=h2, H1=h1)
+    return _local_ham_class()(ham.n_qubits, H2=h2, H1=h1)
+
+
+def hermitian_expm(h: np.ndarray, x: complex) -> np.ndarray:
+    """exp(x h) of a Hermitian h from its eigendecomposition h = V diag(w) V^+.
+
+    Small gates are exponentiated this way rather than by scipy's Pade
+    routine, whose BLAS threads cost milliseconds per 4 x 4 matrix on a busy machine.
+    """
+    w, v = np.linalg.eigh(h)
+    return (v * np.exp(x * w)) @ v.conj().T
+
+
+def _local_ham_class():
+    """quimb's LocalHam1D with gates exponentiated by :func:`hermitian_expm` (same cache)."""
+    import quimb.tensor as qtn
+
+    class HermitianLocalHam1D(qtn.LocalHam1D):
+        def _expm_cached(self, G, x):
+            cache = self._op_cache["expm"]
+            key = (id(G), x)
+            if key not in cache:
+                g = np.asarray(G)
+                d = int(round(np.sqrt(g.size)))
+                cache[key] = hermitian_expm(g.reshape(d, d), x).reshape(g.shape)
+            return cache[key]
+
+    return HermitianLocalHam1D
 
 
 def evolve_mps(ham: PauliExpansion, mps0, times, dt: float = 0.05, bond_dim: int = 128,
                cutoff: float = 1e-12):
     """MPS at each time under exp(-i H t) by fourth-order TEBD (quimb).
 
-    Returns (states, Trotter error estimate). Small ``dt`` is not better:
+    Nearest-neighbour chains use quimb's TEBD; two-qubit terms at longer
+    range go through :func:`manybody.references.tebd.evolve_mps_gates`.
+    Truncated states are not renormalised: 1 - <psi|psi> is the discarded
+    weight. Returns (states, Trotter error estimate). Small ``dt`` is not better:
     truncation errors add up per step, so keep ``cutoff`` well below the
     accuracy wanted.
     """
     import quimb.tensor as qtn
 
-    tebd = qtn.TEBD(mps0.copy(), local_ham_1d(ham), dt=dt, progbar=False,
+    try:
+        local = local_ham_1d(ham)
+    except ValueError:  # couplings beyond nearest neighbours (ladders, strips): swap gates
+        from manybody.references.tebd import evolve_mps_gates
+
+        return evolve_mps_gates(ham, mps0, times, dt=dt, bond_dim=bond_dim, cutoff=cutoff)
+    tebd = qtn.TEBD(mps0.copy(), local, dt=dt, progbar=False,
                     split_opts={"cutoff": cutoff, "max_bond": bond_dim})
     states = []
     for t in np.asarray(times, dtype=float):
