@@ -24,16 +24,17 @@ __all__ = ["estimate", "parse_subsystems", "Subsystem"]
 
 def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int = 20, method: str = "jackknife",
              correlations: bool = True, mutual_information: bool = True, chunk: int = 8192, progress=None,
-             quantities=None) -> xr.Dataset:
+             quantities=None, options: dict | None = None) -> xr.Dataset:
     """Estimates with error bars of the requested quantities (default: all that the shadow and model allow).
 
     ``quantities`` are names of :data:`manybody.estimation.accumulators.ACCUMULATORS`;
-    ``correlations=False`` keeps the magnetization but skips the pair maps.
+    ``correlations=False`` keeps the magnetization but skips the pair maps;
+    ``options`` are handed to every accumulator's ``build`` (for example a target state).
     """
     if method not in METHODS:
         raise InputError(f"unknown error-bar method {method!r}; allowed: {', '.join(METHODS)}", argument="errors")
     setup, counts = _setup(shadow, model, subsystems, calibration, n_blocks, chunk)
-    options = {"correlations": correlations, "mutual_information": mutual_information}
+    options = {"correlations": correlations, "mutual_information": mutual_information, **(options or {})}
     accumulators = _accumulators(setup, quantities, options)
     chunks = shadow.chunks(chunk)
     for pos, bits, weights in (progress(chunks) if progress else chunks):
