@@ -23,7 +23,11 @@ import time
 
 import numpy as np
 
-from manybody.estimation.stabilizer import pauli_vector_sums, subsystem_purities, support_eigenvalues
+from manybody.estimation.stabilizer import (
+    pauli_vector_sums,
+    subsystem_purities,
+    support_eigenvalues,
+)
 from manybody.measure.ensembles import ShallowEnsemble
 from manybody.measure.paulis import paulis_on
 

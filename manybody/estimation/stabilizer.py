@@ -155,7 +155,7 @@ def subgroup_on(ensemble, settings, qubits) -> Subgroup:
     """Generators of G_A(U) = {P on A : U P U^dagger = +-Z_m} for every setting.
 
     Kernel of the visibility map over the 2|A| single-qubit Paulis on A
-    (section docstring); outcome masks are the seen bits of the combination;
+    (module docstring); outcome masks are the seen bits of the combination;
     signs come from the ordered product P = i^y prod_q X_q^x_q Z_q^z_q of the
     propagated images (phases by :func:`hamiltonians.pauli.product_phase`).
     Local ensemble: the generators are the measured Paulis on A.
@@ -404,7 +404,7 @@ def purities_from_sums(vv_by_support, diag_by_support, n_pairs) -> np.ndarray:
     D = within_by_support and n_pairs = N^2 - sum_s n_s^2 for several (docs/design.md section 4).
     """
     total = subset_sums(np.asarray(vv_by_support, float) - np.asarray(diag_by_support, float))
-    size = np.array([bin(b).count("1") for b in range(total.shape[-1])])
+    size = np.array([b.bit_count() for b in range(total.shape[-1])])
     return total / (2.0**size * np.asarray(n_pairs, dtype=float)[..., None])
 
 
