@@ -51,6 +51,8 @@ from manybody.measure.paulis import BASIS_PAULI
 DENSE_MAX_QUBITS = 10
 #: group elements handled at once (settings x 2^k), to bound memory.
 ELEMENT_BATCH = 1 << 21
+#: sparse Pauli sums are merged once this many (key, value) pairs wait.
+SPARSE_PENDING = 1 << 23
 
 
 class Subgroup(NamedTuple):
@@ -325,6 +327,8 @@ def pauli_vector_sums(ensemble, settings, setting_positions, outcomes, counts, q
             values += np.bincount(keys.ravel(), weights=v.ravel(), minlength=4**a)
         else:
             parts.append((keys.ravel(), v.ravel()))
+            if sum(len(p[0]) for p in parts) > SPARSE_PENDING:  # merge, to keep memory flat
+                parts = [_sparse_sum([p[0] for p in parts], [p[1] for p in parts])]
         self_s += np.bincount(pattern.ravel(), weights=(shots[sel][:, None] / lam**2).ravel(), minlength=2**a)
         within_s += np.bincount(pattern.ravel(), weights=(v * v).ravel(), minlength=2**a)
         within_setting[sel] = np.sum(v * v, axis=1)
