@@ -246,8 +246,34 @@ def outcome_table(psi, ensemble, settings) -> np.ndarray:
     whose channel is Pauli-diagonal); settings are processed all at once.
     """
     psi = dense_target(psi)
-    states = rotate_dense(np.broadcast_to(psi, (len(settings), len(psi))).copy(), ensemble, settings, 0)
-    return inverse_channel_values(np.abs(states) ** 2, ensemble, settings)
+    return inverse_channel_values(rotated_probabilities(psi, ensemble, settings), ensemble, settings)
+
+
+def rotated_probabilities(psi: np.ndarray, ensemble, settings) -> np.ndarray:
+    """p_k(x) = |<x|U_k|psi>|^2 for every setting k (gates, then basis rotations): (K, 2^n).
+
+    Each gate slot is one einsum over the batch of settings, on a view of
+    the state with the gate's qubits as separate axes (no transposed copies).
+    Global Clifford settings go through ``rotate_dense`` (gate lists by stim).
+    """
+    k, dim = len(settings), len(psi)
+    n = int(np.log2(dim))
+    if settings.tableau_x is not None:
+        return np.abs(rotate_dense(np.broadcast_to(psi, (k, dim)).copy(), ensemble, settings, 0)) ** 2
+    states = np.broadcast_to(psi, (k, dim))
+    if settings.gates is not None and settings.gates.shape[1]:
+        unitaries = clifford_table(2).unitaries
+        for slot, (a, b) in enumerate(ensemble.gate_qubits.tolist()):
+            u = unitaries[settings.gates[:, slot]].reshape(k, 2, 2, 2, 2)  # (out a, out b, in a, in b)
+            if a > b:
+                a, b, u = b, a, u.transpose(0, 2, 1, 4, 3)
+            view = states.reshape(k, 2**a, 2, 2**(b - a - 1), 2, -1)
+            states = np.einsum("kijst,kaszty->kaizjy", u, view).reshape(k, dim)
+    rotations = BASIS_ROTATIONS[settings.basis]  # (K, n, 2, 2)
+    for q in range(n):
+        view = states.reshape(k, 2**q, 2, -1)
+        states = np.einsum("kij,kajr->kair", rotations[:, q], view).reshape(k, dim)
+    return np.abs(states) ** 2
 
 
 def shallow_fidelity(psi, ensemble, settings, setting_index: np.ndarray, bits: np.ndarray) -> np.ndarray:
@@ -275,8 +301,7 @@ def _per_setting(psi, ensemble, settings, setting_index, bits, table_of) -> np.n
     for start in range(0, len(distinct), step):
         stop = min(start + step, len(distinct))
         sub = settings.take(distinct[start:stop])
-        states = rotate_dense(np.broadcast_to(psi, (stop - start, len(psi))).copy(), ensemble, sub, 0)
-        table = table_of(np.abs(states) ** 2, sub)
+        table = table_of(rotated_probabilities(psi, ensemble, sub), sub)
         rows = order[bounds[start]:bounds[stop]]
         out[rows] = table[inverse[rows] - start, outcome[rows]]
     return out

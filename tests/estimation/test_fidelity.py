@@ -107,6 +107,18 @@ def test_stabilizer_supports_match_dense_conjugation():
             assert supports[k, z] == mask
 
 
+def test_rotated_probabilities_match_the_sampler_rotation():
+    # Our einsum rotation against the sampler's (manybody.simulation.sampling.rotate_dense), on a chain
+    # and on a non-chain coupling graph (gates between distant qubits).
+    n = 6
+    psi = random_state(n, 21)
+    for coupling in (chain(n), [(0, 3), (1, 4), (2, 5), (0, 1), (3, 4), (1, 2)]):
+        ens = ShallowEnsemble(n, 3, coupling)
+        settings = ens.draw(20, np.random.default_rng(22))
+        assert np.allclose(fid.rotated_probabilities(psi, ens, settings),
+                           born_probabilities(psi, ens, settings), atol=1e-13)
+
+
 # ------------------------------------------------------- statistical checks
 @pytest.mark.parametrize("kind,depth", [("local", 0), ("shallow", 2), ("global", 0)])
 def test_product_state_fidelity_with_itself_and_with_an_orthogonal_one(kind, depth):
