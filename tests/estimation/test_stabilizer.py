@@ -270,7 +270,8 @@ def test_ghz_every_half_cut_has_renyi_entropy_ln2(name):
     assert np.isclose(est[0], 1.0)  # the empty subsystem: tr rho = 1 exactly
 
 
-def test_cluster_chain_entropy_counts_cut_boundaries():
+@pytest.mark.parametrize("n_settings, shots", [(2000, 10), (20000, 1)])
+def test_cluster_chain_entropy_counts_cut_boundaries(n_settings, shots):
     """1D cluster state: S2 = ln 2 per boundary of a contiguous block of >= 2 qubits (common practice,
     from the stabilizer rank: each cut bond removes one stabilizer from the block's group)."""
     n, qubits = 8, [0, 1, 2, 3, 4]
@@ -279,7 +280,7 @@ def test_cluster_chain_entropy_counts_cut_boundaries():
     rule = np.array([np.log(2) * ((b[0] > 0) + (b[-1] < n - 1)) for b in blocks])
     exact = np.array([-np.log(reduced_purity(psi, b)) for b in blocks])
     assert np.allclose(exact, rule)
-    shadow = make_shadow(psi, ShallowEnsemble(n, 1, chain(n)), 2000, shots=10, seed=4)
+    shadow = make_shadow(psi, ShallowEnsemble(n, 1, chain(n)), n_settings, shots=shots, seed=4)
     est, err = jackknife_purities(block_sums(shadow, qubits, 20))
     index = [pattern_of(b, qubits) for b in blocks]
     ok, worst = within(est[index], err[index], np.exp(-rule), blocks=20)
