@@ -27,10 +27,12 @@ sums: the Paulis of A supported in B are those of B, so all sums are also kept
 per support pattern and added over the subsets of B.
 
 Generators: the images U X_q U^dagger, U Z_q U^dagger (q in A) come from the
-propagation tables (``Ensemble.final_paulis``, :mod:`manybody.measure.propagation`); a product of them is
-seen by the final computational-basis measurement iff it commutes with the
-measured Pauli on every qubit, a linear condition over GF(2) whose kernel is
-G_A (Gaussian elimination, vectorised over settings). Pauli codes on A: one
+propagation tables (``Ensemble.final_paulis``) or, for global Cliffords, from
+the tableau rows; a product of them is seen by the final computational-basis
+measurement iff it commutes with the measured Pauli on every qubit, a linear
+condition over GF(2) whose kernel is G_A (Gaussian elimination, vectorised
+over settings; stabilizer formalism: Aaronson and Gottesman, Phys. Rev. A 70,
+052328 (2004), from memory). Pauli codes on A: one
 code per qubit of A (0 I, 1 X, 2 Z, 3 Y, :mod:`manybody.measure.paulis`); the
 integer key of a Pauli on A is sum_t code_t 4^(|A|-1-t), the row of
 :func:`manybody.measure.paulis.paulis_on`; its support pattern has bit t set
