@@ -122,8 +122,9 @@ def seed_attr(attrs, where: str) -> int | None:
 
 
 # ----------------------------------------------------------------- variables
-def variable(ds, name: str, where: str, dims: tuple, shape: tuple | None = None, kinds: str = "iu"):
-    """The values of a settings variable, with its dimensions, shape and number kind checked."""
+def variable(ds, name: str, where: str, dims: tuple, shape: tuple | None = None, kinds: str = "iu",
+             load: bool = True):
+    """The values of a settings variable (None unless ``load``), with its dimensions, shape and number kind checked."""
     if name not in ds.variables:
         raise InputError(f"{where}: variable {name} is missing")
     var = ds.variables[name]
@@ -134,7 +135,7 @@ def variable(ds, name: str, where: str, dims: tuple, shape: tuple | None = None,
         raise InputError(f"{where}: variable {name} holds {var.dtype} values; expected integers")
     if shape is not None and tuple(var.shape) != tuple(shape):
         raise InputError(f"{where}: variable {name} has shape {tuple(var.shape)}; expected {tuple(shape)}")
-    return np.asarray(var.values)
+    return np.asarray(var.values) if load else None
 
 
 def in_range(values, name: str, where: str, low: int, high: int, allowed: str | None = None):
@@ -202,9 +203,9 @@ def qubit_site(ds, where: str, n: int) -> np.ndarray:
 
 def record_layout(ds, where: str, n: int) -> None:
     """record_setting, outcome and count: dimensions and number types (values are checked per chunk)."""
-    variable(ds, "record_setting", where, ("record",))
-    variable(ds, "count", where, ("record",))
-    variable(ds, "outcome", where, ("record", "outcome_byte"), kinds="u")
+    variable(ds, "record_setting", where, ("record",), load=False)
+    variable(ds, "count", where, ("record",), load=False)
+    variable(ds, "outcome", where, ("record", "outcome_byte"), kinds="u", load=False)
     width = ds.variables["outcome"].shape[1]
     if width != -(-n // 8) or ds.variables["outcome"].dtype != np.uint8:
         raise InputError(f"{where}: variable outcome has {width} {ds.variables['outcome'].dtype} values per record; "
