@@ -61,7 +61,7 @@ def choose_method(model, method: str = "auto") -> str:
 
 
 def reference(model, state, times=None, subsystems=(), method: str = "auto", bond_dim: int = 128,
-              cutoff: float = 1e-10, progress=None):
+              cutoff: float = 1e-10, progress=None, *, time_step: float = 0.05):
     """Exact values of a state of ``model`` in the results schema (an xarray Dataset).
 
     ``state``: "ground", a product-state word or name (see
@@ -70,8 +70,9 @@ def reference(model, state, times=None, subsystems=(), method: str = "auto", bon
     Hamiltonian); several give a ``time`` dimension. ``subsystems``: objects
     with ``.label`` and ``.sites``. ``method``: "auto" (dense up to 20 qubits,
     matrix product states beyond, for chains and ladders), "dense" or "mps".
-    ``bond_dim`` and ``cutoff`` bound the MPS; ``progress`` wraps an iterable
-    (e.g. tqdm) over the time points.
+    ``bond_dim`` and ``cutoff`` bound the MPS (quimb's truncation of singular
+    values); ``time_step`` is the TEBD step (fourth order, error ~ t dt^4);
+    ``progress`` wraps an iterable (e.g. tqdm) over the time points.
     """
     from manybody import __version__
     from manybody.io.results import combine_series
@@ -82,9 +83,10 @@ def reference(model, state, times=None, subsystems=(), method: str = "auto", bon
         times = [float(t) for t in times]
         if not times or any(not math.isfinite(t) or t < 0 for t in times) or sorted(set(times)) != times:
             raise InputError(f"times {times}: expected finite, non-negative times in increasing order")
-    if not (int(bond_dim) >= 1 and cutoff >= 0):
-        raise InputError(f"bond_dim {bond_dim} and cutoff {cutoff}: expected a bond dimension >= 1 and a cutoff >= 0")
-    states, info = prepare(model, state, times, kind, int(bond_dim), float(cutoff))
+    if not (int(bond_dim) >= 1 and cutoff >= 0 and time_step > 0):
+        raise InputError(f"bond_dim {bond_dim}, cutoff {cutoff}, time_step {time_step}: expected a bond dimension "
+                         ">= 1, a cutoff >= 0 and a positive time step")
+    states, info = prepare(model, state, times, kind, int(bond_dim), float(cutoff), float(time_step))
     labels = [{} if t is None else {"time": t} for t, _ in states]
     base = {"kind": "exact reference", "tool_version": __version__}
     datasets = []

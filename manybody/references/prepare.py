@@ -54,7 +54,7 @@ def initial_state(model, state, kind: str, bond_dim: int, cutoff: float):
                      "a numpy vector or a quimb MPS")
 
 
-def prepare(model, state, times, kind: str, bond_dim: int, cutoff: float):
+def prepare(model, state, times, kind: str, bond_dim: int, cutoff: float, dt: float = 0.05):
     """([(time or None, state)], attrs): the state at each time and how it was computed."""
     psi, info = initial_state(model, state, kind, bond_dim, cutoff)
     info["method"] = info["initial_method"] if info["initial_method"] in ("exact diagonalization", "DMRG") else (
@@ -66,7 +66,6 @@ def prepare(model, state, times, kind: str, bond_dim: int, cutoff: float):
     if kind == "dense":
         info["method"] = "expm_multiply"
         return list(zip(times, exact.evolve(model.hamiltonian, psi, times))), info
-    dt = 0.05
     try:
         states, trotter = exact.evolve_mps(model.hamiltonian, psi, times, dt=dt, bond_dim=bond_dim, cutoff=cutoff)
     except ValueError as exc:

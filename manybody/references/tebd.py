@@ -51,13 +51,16 @@ def pair_terms(ham: PauliExpansion) -> tuple[list[tuple[int, int]], list[np.ndar
 
 
 def strang_step(mps, where, mats, singles, tau: float, opts: dict, info: dict):
-    """One S2(tau) step in place: half steps forward over the pairs, then backward."""
-    for q, h in singles.items():
-        mps.gate_(hermitian_expm(h, -1j * tau), q, contract=True)
+    """One S2(tau) step in place: lone one-qubit terms for tau/2, pairs forward then backward for tau/2, lone terms."""
+    lone = [(q, hermitian_expm(h, -0.5j * tau)) for q, h in singles.items()]
+    for q, gate in lone:
+        mps.gate_(gate, q, contract=True)
     order = list(range(len(where)))
     for b in order + order[::-1]:
         gate = hermitian_expm(mats[b], -0.5j * tau)
         mps.gate_with_auto_swap(gate, where[b], info=info, inplace=True, **opts)
+    for q, gate in lone:
+        mps.gate_(gate, q, contract=True)
 
 
 def evolve_mps_gates(ham: PauliExpansion, mps0, times, dt: float = 0.05, bond_dim: int = 128,

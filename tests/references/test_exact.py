@@ -10,6 +10,7 @@ from hamiltonians.pauli import PauliExpansion
 from manybody.references import exact
 
 
+@pytest.mark.slow  # DMRG of four chains up to 40 sites; test_heisenberg_dmrg_matches_ed_12_sites is the fast sibling
 def test_heisenberg_dmrg_approaches_hulthen():
     # Hulthen (1938), from Bethe (1931): energy per bond 1/4 - ln 2 in S = sigma/2 units.
     # Open chains, E(L)/(L-1) = e + a/L + b/L^2 (finite-size extrapolation).
