@@ -277,7 +277,7 @@ def _eigenvalue_table(eigenvalue, n_qubits, qubits):
     return table
 
 
-def _batches(group, ranks):
+def _batches(ranks):
     """(rank k, setting indices) batches of equal rank with at most ELEMENT_BATCH elements each."""
     for k in np.unique(ranks).tolist():
         sel = np.flatnonzero(ranks == k)
@@ -311,7 +311,7 @@ def pauli_vector_sums(ensemble, settings, setting_positions, outcomes, counts, q
     self_s, within_s = np.zeros(2**a), np.zeros(2**a)
     within_setting = np.zeros(len(used))
     local = np.full(len(used), -1)
-    for k, sel in _batches(group, group.rank):
+    for k, sel in _batches(group.rank):
         codes, signs = group_elements(group.codes[sel, :k], group.signs[sel, :k])
         keys, pattern = pauli_keys(codes)
         if np.isnan(table[pattern]).any():
