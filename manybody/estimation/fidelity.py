@@ -23,6 +23,9 @@ accumulator needs only sums (and sums per block of settings for error bars).
   With p(x) = |<x|U|psi>|^2, <psi|U^dag Z^z U|psi> = sum_x (-1)^(z.x) p(x) is
   the Walsh-Hadamard transform of p, so one setting costs two transforms
   and gives f for all 2^n outcomes b at once (exact, dense target).
+  Beyond dense targets, the published route is a tensor-network inverse
+  channel (Bertoni et al., PRL 133, 020602 (2024); Akhtar, Hu, You,
+  Quantum 7, 1026 (2023)); it is not implemented here.
 
 Index convention: qubit 0 is the most significant bit of a basis-state
 index, outcome bit 0 is the +1 eigenvalue (docs/design.md section 2).
@@ -280,7 +283,8 @@ def shallow_fidelity(psi, ensemble, settings, setting_index: np.ndarray, bits: n
     """f_s for shallow-circuit (or local) snapshots through :func:`inverse_channel_values`: (N,).
 
     Cost per distinct setting O(G 2^n + n 2^n) (G gates), plus one call of
-    ``ensemble.eigenvalue`` per support pattern never seen before.
+    ``ensemble.eigenvalue`` per support pattern never seen before (up to 2^n
+    calls per ensemble, which bounds the practical size near n = 14 to 16).
     """
     psi = dense_target(psi)
     if ensemble.n_qubits > MAX_DENSE_QUBITS:
