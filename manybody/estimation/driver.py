@@ -68,7 +68,7 @@ def _setup(shadow, model, subsystems, calibration, n_blocks, chunk):
     setting_block[active] = np.arange(len(active)) * n_blocks // len(active)  # contiguous runs of settings
     setup = Setup(shadow=shadow, model=model, lam=Eigenvalues(shadow.ensemble, calibration), qubit_site=qubit_site,
                   setting_block=setting_block, n_blocks=n_blocks, multi=bool(per_setting.max() > 1),
-                  subsystems=list(subsystems))
+                  subsystems=list(subsystems), setting_shots=per_setting)
     blocks = setting_block[active]
     counts = {"n": np.bincount(blocks, weights=per_setting[active], minlength=n_blocks).astype(float),
               "n2": np.bincount(blocks, weights=per_setting[active] ** 2, minlength=n_blocks).astype(float)}

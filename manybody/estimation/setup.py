@@ -76,7 +76,10 @@ class Eigenvalues:
         self.calibrated = calibrated  # a manybody.estimation.calibration.Calibration, or None
 
     def of(self, codes) -> float:
-        support = np.asarray(codes) != 0
+        return self.of_support(np.asarray(codes) != 0)
+
+    def of_support(self, support) -> float:
+        """lambda of a support (boolean mask over the qubits)."""
         source = self.calibrated if self.calibrated is not None else self.ensemble
         return source.eigenvalue(support)
 
@@ -99,6 +102,7 @@ class Setup:
     n_blocks: int
     multi: bool  # some setting has more than one shot
     subsystems: list = field(default_factory=list)
+    setting_shots: np.ndarray | None = None  # snapshots of each setting
 
     @property
     def ensemble(self):

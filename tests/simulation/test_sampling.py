@@ -93,3 +93,20 @@ def test_mps_circuit_application_matches_dense():
         out = np.einsum("...r,rsp->...ps", out, a)
     assert lost == pytest.approx(0.0, abs=1e-14)
     assert abs(np.vdot(out.reshape(-1), psi)) == pytest.approx(1.0)
+
+
+@pytest.mark.parametrize("n", [1, 2, 4, 6])
+def test_clifford_unitary_matches_stim_up_to_a_global_phase(n):
+    # stim's Tableau.to_unitary_matrix (big endian) is the reference.
+    from manybody.measure.ensembles import GlobalEnsemble
+    from manybody.simulation.sampling import clifford_unitary
+    from tests.helpers import stim_tableau_of
+
+    st = GlobalEnsemble(n).draw(4, np.random.default_rng(40 + n))
+    for k in range(4):
+        ours = clifford_unitary(st.tableau_x[k], st.tableau_z[k], st.tableau_sign[k])
+        ref = stim_tableau_of(st.tableau_x[k], st.tableau_z[k], st.tableau_sign[k]).to_unitary_matrix(endian="big")
+        i = np.unravel_index(np.argmax(np.abs(ref)), ref.shape)
+        phase = ours[i] / ref[i]
+        assert abs(abs(phase) - 1) < 1e-6
+        assert np.allclose(ours, phase * ref, atol=1e-6)

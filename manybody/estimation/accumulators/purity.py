@@ -7,8 +7,11 @@ algorithms, chosen per subsystem:
 - local ensemble, up to HISTOGRAM_MAX_SITES sites: histogram of the 6^|A|
   (basis, outcome) words, contracted with the per-site factor matrix;
 - local ensemble, larger: pair counts (matrix products of one-hot words);
-- circuit ensembles: Pauli vectors v_i(P) = tr(P rho_i)/lambda_P over the
-  4^|A| Paulis on A, sum_{i != j} v_i . v_j = |V|^2 - sum_i |v_i|^2.
+- circuit ensembles: Pauli vectors v_i(P) = tr(P rho_i)/lambda_P on A,
+  sum_{i != j} v_i . v_j = |V|^2 - sum_i |v_i|^2, built per setting from the
+  stabilizer group of the snapshot on A by a Walsh-Hadamard transform
+  (:mod:`manybody.estimation.stabilizer`); nested subsystems share one pass,
+  the largest covering the others.
 
 Pairs of shots of one setting are left out via per-setting sums.
 S2 = -ln P with the delta-method error; NaN with a warning when P <= 0.
@@ -25,32 +28,46 @@ from manybody.estimation.accumulators.base import Accumulator, pair_count, put
 from manybody.estimation.errorbars import jackknife
 from manybody.estimation.kernels import histogram_index, histogram_pair_sum, site_factor_matrix, words
 from manybody.estimation.pair_sums import outcome_within, pair_count_blocks, pair_count_jackknife
-from manybody.estimation.sums import within_sums
-from manybody.measure.paulis import paulis_on
+from manybody.estimation.stabilizer import (
+    add_sums,
+    pauli_vector_sums,
+    purities_from_sums,
+    support_products,
+)
 
 HISTOGRAM_MAX_SITES = 8
-PAULI_VECTOR_MAX_QUBITS = 6
+#: circuit ensembles: largest subsystem (qubits); the eigenvalues of its 2^|A| support patterns dominate the cost
+PAULI_VECTOR_MAX_QUBITS = 14
 
 
 class Purity(Accumulator):
+    """Purities of the requested subsystems: local algorithms (histograms, pair counts) or circuit Pauli vectors."""
+
+    @classmethod
+    def build(cls, setup, options):
+        if not setup.subsystems:
+            return None
+        return LocalPurity(setup) if setup.local else CircuitPurity(setup)
+
+    def variables(self, full, err, data, coords):
+        subsystems = self.setup.subsystems
+        coords["subsystem"] = [s.label for s in subsystems]
+        coords["subsystem_size"] = ("subsystem", [len(s.sites) for s in subsystems])
+        purity, perr = np.asarray(full["purity"], float), np.asarray(err["purity"], float)
+        put(data, "purity", ("subsystem",), purity, err)
+        s2, s2_err = renyi2(purity, perr)
+        data["renyi2"] = (("subsystem",), s2)
+        data["renyi2_err"] = (("subsystem",), s2_err)
+
+class LocalPurity(Purity):
     def __init__(self, setup):
         super().__init__(setup)
         self.qubits = [setup.qubits_of(s) for s in setup.subsystems]
         self.pair_words = {}  # subsystem index -> list of (words, setting positions, blocks) chunks
-        for qs in self.qubits:
-            if not setup.local and len(qs) > PAULI_VECTOR_MAX_QUBITS:
-                raise InputError(f"purities of {len(qs)} qubits need the local ensemble; circuit ensembles take "
-                                 f"subsystems of at most {PAULI_VECTOR_MAX_QUBITS} qubits", argument="subsystems")
-
-    @classmethod
-    def build(cls, setup, options):
-        return cls(setup) if setup.subsystems else None
 
     def add(self, chunk):
         for i, qs in enumerate(self.qubits):
-            if not self.setup.local:
-                self._add_pauli_vector(i, qs, chunk)
-            elif len(qs) <= HISTOGRAM_MAX_SITES:
+            if len(qs) <= HISTOGRAM_MAX_SITES:
                 self._add_histogram(i, qs, chunk)
             else:
                 self.pair_words.setdefault(i, []).append(
@@ -72,24 +89,10 @@ class Purity(Accumulator):
             diag = np.prod((1 + inv**2) / 2)  # tr(rho_i^A rho_i^A) of one snapshot
             self.sums.add(f"hw{i}", chunk.onehot, np.full(len(chunk), diag))
 
-    def _add_pauli_vector(self, i, qs, chunk):
-        codes = paulis_on(qs, self.setup.n_qubits)
-        v = np.ones((len(chunk), len(codes)))
-        for r in range(1, len(codes)):
-            v[:, r] = chunk.values(codes[r])
-        self.sums.add(f"pv{i}", chunk.onehot, v)
-        if self.setup.multi:
-            self.per_setting.add(f"pv{i}", chunk.pos, v)
-        else:
-            self.sums.add(f"pw{i}", chunk.onehot, np.sum(v * v, axis=1))
-
     def finish(self):
         setup = self.setup
-        inv = setup.lam.inv_local(setup.n_qubits) if setup.local else None
+        inv = setup.lam.inv_local(setup.n_qubits)
         for i, qs in enumerate(self.qubits):
-            if f"pv{i}" in self.per_setting:
-                within = within_sums(self.per_setting[f"pv{i}"], setup.setting_block, setup.n_blocks)
-                self.sums.add_blocks(f"pw{i}", within.sum(axis=1))
             if f"oh{i}" in self.per_setting:
                 self.sums.add_blocks(f"hw{i}", outcome_within(self.per_setting[f"oh{i}"], setup.setting_block,
                                                               setup.n_blocks, len(qs), inv[qs]))
@@ -99,15 +102,12 @@ class Purity(Accumulator):
 
     def estimates(self, s):
         pairs = pair_count(s)
-        inv = self.setup.lam.inv_local(self.setup.n_qubits) if self.setup.local else None
+        inv = self.setup.lam.inv_local(self.setup.n_qubits)
         purities = []
         for i, qs in enumerate(self.qubits):
             if f"hist{i}" in s:
                 total = histogram_pair_sum(s[f"hist{i}"], [site_factor_matrix(inv[q]) for q in qs])
                 purities.append((total - s[f"hw{i}"]) / pairs)
-            elif f"pv{i}" in s:
-                v = s[f"pv{i}"]
-                purities.append((np.dot(v, v) - s[f"pw{i}"]) / (2 ** len(qs) * pairs))
         return {"purity": np.array(purities, dtype=float)} if purities else {}
 
     def errors(self, counts, method):
@@ -120,15 +120,102 @@ class Purity(Accumulator):
                   for i in range(len(self.qubits))]
         return {"purity": np.array([m[0] for m in merged])}, {"purity": np.array([m[1] for m in merged])}
 
-    def variables(self, full, err, data, coords):
-        subsystems = self.setup.subsystems
-        coords["subsystem"] = [s.label for s in subsystems]
-        coords["subsystem_size"] = ("subsystem", [len(s.sites) for s in subsystems])
-        purity, perr = np.asarray(full["purity"], float), np.asarray(err["purity"], float)
-        put(data, "purity", ("subsystem",), purity, err)
-        s2, s2_err = renyi2(purity, perr)
-        data["renyi2"] = (("subsystem",), s2)
-        data["renyi2_err"] = (("subsystem",), s2_err)
+class CircuitPurity(Purity):
+    """Circuit ensembles: per-block Pauli-vector sums of covering subsystems, from whole settings."""
+
+    def __init__(self, setup):
+        super().__init__(setup)
+        qubits = [setup.qubits_of(s) for s in setup.subsystems]
+        biggest = max(len(qs) for qs in qubits)
+        if biggest > PAULI_VECTOR_MAX_QUBITS:
+            raise InputError(f"subsystems: purities of {biggest} qubits from circuit ensembles take too long here; "
+                             f"at most {PAULI_VECTOR_MAX_QUBITS} qubits (the local ensemble takes any size)",
+                             argument="subsystems")
+        self.covers, self.members = covering_subsystems(qubits)
+        self.eigenvalue = memoized(setup.lam.of_support)  # lambda of each support met, computed once
+        self.parts = [dict() for _ in self.covers]  # cover -> block -> PauliVectorSums
+        self.pending = (np.zeros(0, dtype=np.int64), np.zeros((0, setup.n_qubits), dtype=np.uint8))
+
+    def add(self, chunk):
+        """Hand on the snapshots of complete settings; keep a setting's first shots until its last arrive."""
+        pos = np.concatenate([self.pending[0], chunk.pos])
+        bits = np.concatenate([self.pending[1], chunk.bits])
+        seen = np.bincount(pos, minlength=self.setup.n_settings)
+        complete = seen[pos] >= self.setup.setting_shots[pos]
+        self.pending = (pos[~complete], bits[~complete])
+        self._add_settings(pos[complete], bits[complete])
+
+    def finish(self):
+        self._add_settings(*self.pending)
+        self.pending = (self.pending[0][:0], self.pending[1][:0])
+
+    def _add_settings(self, pos, bits):
+        setup = self.setup
+        blocks = setup.setting_block[pos]
+        for c, cover in enumerate(self.covers):
+            for b in np.unique(blocks):
+                rows = blocks == b
+                part = pauli_vector_sums(setup.ensemble, setup.settings, pos[rows], bits[rows], None, cover,
+                                         self.eigenvalue)
+                self.parts[c][b] = part if b not in self.parts[c] else add_sums(self.parts[c][b], part)
+
+    def errors(self, counts, method):
+        """Purities of every subsystem and their delete-one-block jackknife errors (sums are not linear here)."""
+        full, err = np.zeros(len(self.setup.subsystems)), np.zeros(len(self.setup.subsystems))
+        for c, members in enumerate(self.members):
+            value, error = self._jackknife(self.parts[c], counts)
+            for i, pattern in members:
+                full[i], err[i] = value[pattern], error[pattern]
+        return {"purity": full}, {"purity": err}
+
+    def _jackknife(self, parts, counts):
+        blocks = sorted(parts)
+        total = parts[blocks[0]]
+        for b in blocks[1:]:
+            total = add_sums(total, parts[b])
+        diag = (lambda x: x.within_by_support) if self.setup.multi else (lambda x: x.self_by_support)
+        n, n2 = counts["n"].sum(), counts["n2"].sum()
+        vv = support_products(total)
+        value = purities_from_sums(vv, diag(total), n**2 - n2)
+        loo = np.array([purities_from_sums(vv - 2 * support_products(total, parts[b]) + support_products(parts[b]),
+                                           diag(total) - diag(parts[b]),
+                                           (n - counts["n"][b]) ** 2 - (n2 - counts["n2"][b])) for b in blocks])
+        nb = len(blocks)
+        return value, np.sqrt((nb - 1) / nb * np.sum((loo - loo.mean(axis=0)) ** 2, axis=0))
+
+
+def memoized(eigenvalue):
+    """The eigenvalue of a support mask, each support computed once (calibrated values can be costly)."""
+    cache = {}
+
+    def of_support(mask):
+        key = np.packbits(mask).tobytes()
+        if key not in cache:
+            cache[key] = eigenvalue(mask)
+        return cache[key]
+
+    return of_support
+
+
+def covering_subsystems(qubits):
+    """Fewest covers, largest first: every subsystem is a subset of one cover (nested profiles share one).
+
+    Returns the covers (qubit arrays) and, per cover, (subsystem index, support pattern within the cover).
+    """
+    order = sorted(range(len(qubits)), key=lambda i: -len(qubits[i]))
+    covers, members = [], []
+    for i in order:
+        target = set(qubits[i].tolist())
+        for c, cover in enumerate(covers):
+            if target <= set(cover.tolist()):
+                break
+        else:
+            covers.append(np.asarray(qubits[i]))
+            members.append([])
+            c = len(covers) - 1
+        index = {q: t for t, q in enumerate(covers[c].tolist())}
+        members[c].append((i, sum(1 << index[q] for q in target)))
+    return covers, members
 
 
 def renyi2(purity, perr):
