@@ -155,6 +155,46 @@ def test_depolarized_state_fidelity(depth, state):
     assert abs(est - exact) <= 4 * err, (est, err, exact)
 
 
+def test_readout_noise_is_undone_by_the_calibrated_local_eigenvalue():
+    # Independent bit flips with probability e turn lambda = 1/3 into (1 - 2e)/3 for every one-qubit
+    # Pauli (Chen, Yu, Zeng, Flammia, PRX Quantum 2, 030348 (2021)); with that lambda the fidelity of
+    # GHZ with itself is 1 again, while the uncorrected estimate is biased low (prod of (1-2e) factors
+    # over the weight of each Pauli). Both within 4 standard errors.
+    n, e = 4, 0.05
+    psi = ghz(n)
+    ens = LocalEnsemble(n)
+    shadow = make_shadow(psi, ens, 20000, seed=23)
+    pos, bits = shadow.snapshots()
+    rng = np.random.default_rng(24)
+    bits = bits ^ (rng.random(bits.shape) < e).astype(np.uint8)
+    basis = shadow.settings.basis[pos]
+    est, err = mean_and_error(fid.local_fidelity_dense(psi, basis, bits, inv_lambda=3 / (1 - 2 * e)))
+    assert abs(est - 1) <= 4 * err, (est, err)
+    mps = qtn.MatrixProductState.from_dense(psi, [2] * n)
+    per_qubit = np.full(n, 3 / (1 - 2 * e))
+    assert np.allclose(fid.local_fidelity_mps(mps, basis[:50], bits[:50], inv_lambda=per_qubit),
+                       fid.local_fidelity_dense(psi, basis[:50], bits[:50], inv_lambda=per_qubit), atol=1e-10)
+    # uncorrected: <psi|N(psi)|psi> for GHZ with bit flips; GHZ = 2^-n sum_P <P> P, and
+    # <P> -> (1-2e)^|P| <P> under the flips, so F = 2^-n sum_P (1-2e)^|P| <P>^2 (exact, enumerated)
+    biased = fid.local_fidelity_dense(psi, basis, bits)
+    exact = _noisy_ghz_fidelity(n, e)
+    b_est, b_err = mean_and_error(biased)
+    assert abs(b_est - exact) <= 4 * b_err and exact < 0.9, (b_est, b_err, exact)
+
+
+def _noisy_ghz_fidelity(n, e):
+    """2^-n sum_P (1 - 2e)^|P| <GHZ|P|GHZ>^2 by enumerating all 4^n Paulis (dense)."""
+    psi = ghz(n)
+    paulis = [np.eye(2), np.array([[0, 1], [1, 0]]), np.array([[0, -1j], [1j, 0]]), np.diag([1, -1])]
+    total = 0.0
+    for codes in itertools.product(range(4), repeat=n):
+        p = paulis[codes[0]]
+        for c in codes[1:]:
+            p = np.kron(p, paulis[c])
+        total += (1 - 2 * e) ** np.count_nonzero(codes) * np.vdot(psi, p @ psi).real ** 2
+    return total / 2**n
+
+
 def test_local_variance_of_product_state_fidelity():
     # For psi = |0...0> and the local inverse 3|v><v| - I, <0|O|0> is 2 (Z basis, outcome 0) or
     # 1/2 (X or Y basis), so E f^2 = ((4 + 2 * 1/4) / 3)^n = (3/2)^n and Var f = (3/2)^n - 1
