@@ -149,7 +149,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--depth", type=int, default=1, help="layers for --ensemble shallow (default 1)")
     p.add_argument("--shots", type=int, default=1, metavar="S",
                    help="shots per setting (default 1: every snapshot its own setting)")
-    p.add_argument("--times", metavar="T1,T2,...", help="quench times (in units of 1/J of the model)")
+    p.add_argument("--times", metavar="T1,T2,...", help="quench times, in units of 1/(energy unit of the couplings), hbar = 1")
     p.add_argument("--readout-error", metavar="P or P01,P10", default="0",
                    help="readout bit-flip probability, or the pair p(0 read as 1),p(1 read as 0)")
     p.add_argument("--depolarizing", type=float, default=0.0, metavar="P",

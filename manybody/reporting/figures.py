@@ -83,7 +83,7 @@ def energy_density_plot(ds, ref=None):
         if ref is not None and "energy_density" in ref:
             ax.plot(ref.site.values, _last(ref).energy_density.values, "k--", label="exact")
         ax.set_xlabel("site")
-        ax.set_ylabel("energy density (units of J)")
+        ax.set_ylabel("energy density (energy unit of the couplings)")
         ax.legend()
     else:
         sc = ax.scatter(d.x.values, d.y.values, c=d.energy_density.values, cmap=SEQUENTIAL, s=260, edgecolors="k")
@@ -91,7 +91,7 @@ def energy_density_plot(ds, ref=None):
         ax.set_ylabel("y (lattice spacings)")
         ax.set_aspect("equal")
         ax.margins(0.2)
-        fig.colorbar(sc, ax=ax, label="energy density (units of J)")
+        fig.colorbar(sc, ax=ax, label="energy density (energy unit of the couplings)")
     ax.set_title("energy density")
     fig.tight_layout()
     return fig
@@ -130,7 +130,7 @@ def series_plot(ds, ref=None):
             if ref is not None and "renyi2" in ref:
                 ax.plot(ref.time.values, ref.sel(subsystem=label).renyi2.values, "--",
                         color=line.lines[0].get_color())
-    ax.set_xlabel("time (units of 1/J)")
+    ax.set_xlabel("time (1/energy unit of the couplings, hbar = 1)")
     ax.set_ylabel("Renyi-2 entropy S2 (nats)")
     ax.set_title("entanglement growth (dashed: exact)")
     if "renyi2" in ds:
@@ -146,7 +146,7 @@ def series_plot(ds, ref=None):
                 ax.plot(ref.time.values, ref.correlation.sel(axis_a="Z", axis_b="Z", site_a=a, site_b=a + 1).values,
                         "--", color=line.lines[0].get_color())
         ax.legend(fontsize=8)
-    ax.set_xlabel("time (units of 1/J)")
+    ax.set_xlabel("time (1/energy unit of the couplings, hbar = 1)")
     ax.set_ylabel("<sz_a sz_a+1>")
     ax.set_title("nearest-neighbour ZZ correlation")
     fig.tight_layout()

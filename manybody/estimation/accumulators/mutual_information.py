@@ -31,27 +31,36 @@ class MutualInformation(Accumulator):
         return None
 
     def estimates(self, s):
+        """I2 itself, so that the jackknife sees the covariances of the three purities it is made of."""
         purity = self.pair_purities(s)
-        return {} if purity is None else {"mi_purity": purity}
+        if purity is None:
+            return {}
+        return {"mutual_information": mutual_information(purity)}
 
     def variables(self, full, err, data, coords):
-        if "mi_purity" not in full:
+        if "mutual_information" not in full:
             return
         n = self.setup.n_qubits
         coords.setdefault("site_a", np.arange(n))
         coords.setdefault("site_b", np.arange(n))
-        p, pe = full["mi_purity"], err["mi_purity"]
-        single = np.diag(p)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            s_single = -np.log(single)
-            mi = s_single[:, None] + s_single[None, :] + np.log(p)
-            # delta method, terms treated as independent (a conservative sum in quadrature)
-            se_single = np.diag(pe) / single
-            mi_err = np.sqrt(se_single[:, None] ** 2 + se_single[None, :] ** 2 + (pe / p) ** 2)
+        mi, mi_err = np.array(full["mutual_information"], float), np.array(err["mutual_information"], float)
         mi[np.diag_indices(n)] = np.nan
         mi_err[np.diag_indices(n)] = np.nan
         data["mutual_information"] = (("site_a", "site_b"), mi)
         data["mutual_information_err"] = (("site_a", "site_b"), mi_err)
+
+
+def mutual_information(purity: np.ndarray) -> np.ndarray:
+    """I2(a:b) = S2(a) + S2(b) - S2(ab) = ln(P_ab / (P_a P_b)) from single-site (diagonal) and pair purities.
+
+    NaN where a purity estimate is not positive (too few snapshots for a logarithm).
+    """
+    with np.errstate(invalid="ignore", divide="ignore"):
+        log_p = np.log(np.where(purity > 0, purity, np.nan))
+    single = np.diag(log_p)
+    mi = log_p - single[:, None] - single[None, :]
+    mi[np.diag_indices(len(mi))] = np.nan
+    return mi
 
 
 class LocalMutualInformation(MutualInformation):
