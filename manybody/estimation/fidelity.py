@@ -40,7 +40,8 @@ import numpy as np
 from manybody.errors import InputError
 from manybody.measure.clifford import clifford_table
 from manybody.measure.paulis import BASIS_PAULI
-from manybody.simulation.sampling import index_bits, mps_site_tensors, rotate_dense
+from manybody.estimation.stabilizer import support_eigenvalues, walsh_hadamard
+from manybody.simulation.sampling import mps_site_tensors, rotate_dense
 from manybody.simulation.statevector import BASIS_ROTATIONS
 
 #: dense work arrays are kept below this many complex amplitudes per chunk.
@@ -172,23 +173,12 @@ def global_fidelity(psi, ensemble, settings, setting_index: np.ndarray, bits: np
 
 
 # ----------------------------------------------------------------- shallow (and any Pauli-diagonal ensemble)
-def walsh_hadamard(values: np.ndarray) -> np.ndarray:
-    """h(z) = sum_x (-1)^(popcount(z & x)) values(x) along the last axis (length 2^n), unnormalised."""
-    out = np.array(values, dtype=float, copy=True)
-    lead, dim = out.shape[:-1], out.shape[-1]
-    n = int(np.log2(dim))
-    for q in range(n):
-        view = out.reshape(lead + (2**q, 2, dim >> (q + 1)))
-        top, bottom = view[..., 0, :].copy(), view[..., 1, :]
-        view[..., 0, :] += bottom
-        view[..., 1, :] = top - bottom
-    return out
-
-
 def inverse_eigenvalue_table(ensemble, masks: np.ndarray) -> np.ndarray:
     """1/lambda for support masks (integers, qubit 0 = most significant bit), from ``ensemble.eigenvalue``.
 
-    Values are cached per ensemble in a 2^n table filled on demand.
+    Values are cached per ensemble in a 2^n table filled on demand
+    (:func:`manybody.estimation.stabilizer.support_eigenvalues`, with the
+    qubits listed last to first so that its pattern bits match our masks).
     """
     n = ensemble.n_qubits
     table = _INV_LAMBDA_TABLES.get(ensemble)
@@ -198,8 +188,9 @@ def inverse_eigenvalue_table(ensemble, masks: np.ndarray) -> np.ndarray:
         _INV_LAMBDA_TABLES[ensemble] = table
     masks = np.asarray(masks, dtype=np.int64)
     missing = np.unique(masks[np.isnan(table[masks])])
-    for mask, support in zip(missing.tolist(), index_bits(missing, n).astype(bool)):
-        table[mask] = 1.0 / ensemble.eigenvalue(support)
+    if len(missing):
+        lam = support_eigenvalues(ensemble.eigenvalue, n, np.arange(n - 1, -1, -1), patterns=missing)
+        table[missing] = 1.0 / lam[missing]
     return table[masks]
 
 
