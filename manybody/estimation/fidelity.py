@@ -12,8 +12,8 @@ accumulator needs only sums (and sums per block of settings for error bars).
   Dense target: (x)_q O_q applied to psi for a chunk of snapshots at once.
   MPS target: a product of transfer matrices, batched over snapshots.
 - global Clifford ensemble: f = (2^n + 1)|<b|U|psi>|^2 - 1 (Huang, Kueng,
-  Preskill 2020); U from the tableau through stim's circuit synthesis
-  (Gidney, Quantum 5, 497 (2021)).
+  Preskill 2020); U psi from the tableau by the sampler's rotation
+  (``rotate_dense``, which builds on stim: Gidney, Quantum 5, 497 (2021)).
 - shallow circuits (and every ensemble whose channel is Pauli-diagonal):
   M^-1(rho_i) = 2^-n sum_P tr(P rho_i) P / lambda_P, and tr(P rho_i) is
   nonzero only on the stabilizer group {U^dag Z^z U} of rho_i, so
@@ -163,7 +163,7 @@ def global_fidelity(psi, ensemble, settings, setting_index: np.ndarray, bits: np
 
     Huang, Kueng, Preskill, Nat. Phys. 16, 1050 (2020), eq. for the global
     Clifford inverse M^-1(X) = (2^n + 1) X - tr(X) I. U psi is computed once
-    per setting (the gates of stim's tableau synthesis), then every
+    per setting (``rotate_dense``: the tableau's unitary), then every
     snapshot of that setting is a table look-up.
     """
     psi = dense_target(psi)
@@ -248,7 +248,7 @@ def rotated_probabilities(psi: np.ndarray, ensemble, settings) -> np.ndarray:
 
     Each gate slot is one einsum over the batch of settings, on a view of
     the state with the gate's qubits as separate axes (no transposed copies).
-    Global Clifford settings go through ``rotate_dense`` (gate lists by stim).
+    Global Clifford settings go through ``rotate_dense`` (unitaries from the tableaux).
     """
     k, dim = len(settings), len(psi)
     n = int(np.log2(dim))
