@@ -54,8 +54,10 @@ def site_tensors(mps) -> list[np.ndarray]:
 
 def transfer(env: np.ndarray, b: np.ndarray, op: np.ndarray | None = None) -> np.ndarray:
     """E'[c', c] = sum conj(B[a', s', c']) E[a', a] O[s', s] B[a, s, c] for a stack E (..., a', a); O = 1 if None."""
-    if op is None:
-        return sum(b[:, s].conj().T @ env @ b[:, s] for s in range(b.shape[1]))
+    if op is None:  # two matrix products: (E B)[.., (a' s), c], then B^+ over (a' s)
+        a, d, c = b.shape
+        ket = (env.reshape(-1, a) @ b.reshape(a, d * c)).reshape(env.shape[:-2] + (a * d, c))
+        return b.reshape(a * d, c).conj().T @ ket
     return sum(op[t, s] * (b[:, t].conj().T @ env @ b[:, s])
                for t in range(b.shape[1]) for s in range(b.shape[1]) if op[t, s] != 0)
 
