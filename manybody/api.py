@@ -206,7 +206,7 @@ def estimate(shadow, model=None, subsystems=(), observables=None, target=None, c
     """
     from manybody.estimation.driver import estimate as _estimate
 
-    for name, value in (("observables", observables), ("target", target), ("scheduler", scheduler)):
+    for name, value in (("observables", observables), ("scheduler", scheduler)):
         if value is not None:
             raise InputError(f"{name}: not available in this version of manybody", argument=name)
     shadow = _shadow(shadow)
@@ -214,8 +214,40 @@ def estimate(shadow, model=None, subsystems=(), observables=None, target=None, c
     n_sites = model.n_sites if model is not None else int(np.max(shadow.qubit_site)) + 1
     if int(blocks) < 2:
         raise InputError(f"blocks must be at least 2 for an error bar, got {blocks}", argument="blocks")
+    state, description = target_state(target, model, shadow.n_qubits)
     return _estimate(shadow, model, subsystems_of(subsystems, n_sites), _calibration(calibration, shadow),
-                     n_blocks=int(blocks), method=errors, quantities=quantities, progress=progress)
+                     n_blocks=int(blocks), method=errors, quantities=quantities, progress=progress,
+                     options={"target": state, "target_description": description})
+
+
+def target_state(target, model, n_qubits: int):
+    """A target state for the fidelity, and a description of it.
+
+    ``target``: "ground" (the model's ground state: exact diagonalization up to
+    20 qubits, DMRG beyond), a product state ("neel", "zero", ..., or one letter
+    per qubit), "STATE@SPEC.toml", a state file written by
+    ``manybody.io.states.write_state`` (netCDF), a numpy vector or a quimb MPS.
+    """
+    if target is None:
+        return None, ""
+    if isinstance(target, (str, os.PathLike)) and os.path.isfile(target):
+        from manybody.io.states import read_state
+
+        state, description = read_state(target), f"state file {os.fspath(target)}"
+    elif isinstance(target, str):
+        from manybody.references.exact import MAX_EXACT_QUBITS
+        from manybody.simulation.experiment import initial_state
+
+        if model is None:
+            raise InputError(f"target {target!r}: a model is needed to prepare it (give model=)", argument="target")
+        backend = "dense" if n_qubits <= MAX_EXACT_QUBITS else "mps"
+        state, description = initial_state(model, target, backend)[0], target
+    else:
+        state, description = target, "given state"
+    size = getattr(state, "L", None) or int(np.log2(max(np.size(state), 1)))
+    if size != n_qubits:
+        raise InputError(f"target: the state has {size} qubits but the shadow has {n_qubits}", argument="target")
+    return state, description
 
 
 def stored_model(shadow):

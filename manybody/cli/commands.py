@@ -148,9 +148,9 @@ def cmd_estimate(args) -> int:
             warnings.simplefilter("always", RuntimeWarning)
             try:
                 ds = mb.estimate(shadow, model=args.model, subsystems=args.subsystems, calibration=calibration,
-                                 errors=args.errors, blocks=args.blocks,
+                                 target=args.target, errors=args.errors, blocks=args.blocks,
                                  quantities=None if not args.no_mutual_information else
-                                 ("energy", "correlations", "purity"),
+                                 ("energy", "correlations", "purity", "fidelity"),
                                  progress=progress_bar(args, desc=os.path.basename(path), unit="chunk"))
             except InputError as exc:
                 raise InputError(f"{path}: {exc}", argument=exc.argument) from None
@@ -167,6 +167,8 @@ def _print_summary(path, ds):
     parts = [f"{path}: {ds.attrs['n_snapshots']} snapshots"]
     if "energy" in ds:
         parts.append(f"energy {float(ds.energy):.5g} +- {float(ds.energy_err):.2g}")
+    if "fidelity" in ds:
+        parts.append(f"fidelity {float(ds.fidelity):.4g} +- {float(ds.fidelity_err):.2g}")
     if "renyi2" in ds:
         for label, s2, err in zip(ds.subsystem.values, ds.renyi2.values, ds.renyi2_err.values):
             parts.append(f"S2[{label}] {s2:.4g} +- {err:.2g}")

@@ -172,11 +172,15 @@ def build_parser() -> argparse.ArgumentParser:
             "'profile' gives the entropy profile 0;0-1;0-2;... up to half the system."),
         epilog=("examples:\n"
                 "  manybody estimate gs.nc --subsystems '0-5;0;0-1' -o results.nc\n"
-                "  manybody estimate quench/*.nc --subsystems 0-5 --calibration cal.nc -o series.nc"))
+                "  manybody estimate quench/*.nc --subsystems 0-5 --calibration cal.nc -o series.nc\n"
+                "  manybody estimate gs.nc --target ground -o fidelity.nc"))
     p.add_argument("shadows", nargs="+", metavar="SHADOW.nc", help="shadow files")
     p.add_argument("--model", metavar="SPEC.toml", help="model spec (default: the one stored in the shadow)")
     p.add_argument("--subsystems", metavar="LIST", help="subsystems for purities and Renyi-2 entropies")
     p.add_argument("--calibration", metavar="CAL.nc", help="shadow of |0...0> for robust (noise-aware) estimates")
+    p.add_argument("--target", metavar="STATE",
+                   help="also estimate the fidelity <psi|rho|psi> to this state: ground (of the model), a product "
+                        "state (neel, zero, ... or letters 0 1 + -), STATE@SPEC.toml, or a state file (.nc)")
     p.add_argument("--errors", choices=("jackknife", "median-of-means", "analytic"), default="jackknife",
                    help="error-bar method (default jackknife; the others apply to plain means)")
     p.add_argument("--blocks", type=int, default=20, help="jackknife blocks of settings (default 20)")

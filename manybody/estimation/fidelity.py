@@ -310,7 +310,7 @@ def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bi
     use transfer matrices, dense targets the product operator. Shallow and
     global ensembles: exact dense routes (an MPS target is made dense).
     """
-    if ensemble.kind == "local" or (ensemble.kind == "shallow" and not len(ensemble.gate_qubits)):
+    if ensemble.is_local:
         basis = settings.basis[np.asarray(setting_index, dtype=np.int64)]
         if hasattr(target, "to_dense") and not isinstance(target, np.ndarray):
             return local_fidelity_mps(target, basis, bits)

@@ -9,6 +9,7 @@ order of the variables in the results dataset.
 from manybody.estimation.accumulators.base import Accumulator
 from manybody.estimation.accumulators.correlations import Correlations
 from manybody.estimation.accumulators.energy import Energy
+from manybody.estimation.accumulators.fidelity import Fidelity
 from manybody.estimation.accumulators.mutual_information import MutualInformation
 from manybody.estimation.accumulators.purity import Purity
 from manybody.estimation.accumulators.total_magnetization import TotalMagnetization
@@ -19,8 +20,9 @@ ACCUMULATORS = {
     "purity": Purity,
     "mutual_information": MutualInformation,
     "total_magnetization": TotalMagnetization,
+    "fidelity": Fidelity,
 }
 #: what ``estimate`` computes unless told otherwise
-DEFAULT_QUANTITIES = ("energy", "correlations", "purity", "mutual_information")
+DEFAULT_QUANTITIES = ("energy", "correlations", "purity", "mutual_information", "fidelity")
 
 __all__ = ["ACCUMULATORS", "DEFAULT_QUANTITIES", "Accumulator"]

@@ -1,0 +1,78 @@
+"""Fidelity through the estimate driver, the Python API and the command line."""
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import manybody as mb
+from manybody.estimation.calibration import Calibration
+from manybody.estimation.driver import estimate
+from manybody.measure.ensembles import LocalEnsemble, ShallowEnsemble
+from manybody.references import exact
+from manybody.simulation.noise import Noise
+from tests.helpers import chain, make_shadow, tfim_model, within
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+@pytest.mark.parametrize("depth", [0, 2])
+def test_fidelity_of_the_sampled_state_to_itself_and_to_a_product_state(depth):
+    # F(psi, psi) = 1 and F(psi, |0...0>) = |<0...0|psi>|^2 (scipy ground state; facts of the trade).
+    n = 6
+    model = tfim_model(n)
+    _, psi = exact.ground_state(model.hamiltonian)
+    ens = LocalEnsemble(n) if depth == 0 else ShallowEnsemble(n, depth, chain(n))
+    shadow = make_shadow(psi, ens, 4000, seed=30 + depth)
+    zero = exact.product_state("0" * n)
+    for target, value in ((psi, 1.0), (zero, abs(psi[0]) ** 2)):
+        result = estimate(shadow, model, quantities=("fidelity",), options={"target": target})
+        ok, worst = within(result.fidelity.values, result.fidelity_err.values, value)
+        assert ok, worst
+
+
+def test_robust_fidelity_with_readout_errors():
+    # Readout flips shrink lambda per qubit; the calibrated inverse removes the bias
+    # (Chen, Yu, Zeng, Flammia, PRX Quantum 2, 030348 (2021)). Target: the prepared state itself.
+    n = 5
+    plus = exact.product_state("+-0+1")
+    noise = Noise(p01=0.04, p10=0.04)
+    zero = exact.product_state("0" * n)
+    cal = Calibration(make_shadow(zero, LocalEnsemble(n), 40000, seed=3, noise=noise))
+    shadow = make_shadow(plus, LocalEnsemble(n), 8000, seed=4, noise=noise)
+    robust = estimate(shadow, None, calibration=cal, quantities=("fidelity",), options={"target": plus})
+    ok, worst = within(robust.fidelity.values, robust.fidelity_err.values, 1.0)
+    assert ok, worst
+    plain = estimate(shadow, None, quantities=("fidelity",), options={"target": plus})
+    assert float(plain.fidelity) < 1 - 4 * float(plain.fidelity_err)  # biased without calibration
+
+
+def test_api_and_command_line_targets(tmp_path):
+    spec = tmp_path / "chain.toml"
+    spec.write_text('[lattice]\nkind = "chain"\nsize = [6]\n[model]\nkind = "tfim"\nJ = 1.0\nh = 1.0\n')
+    model = mb.load_model(spec)
+    shadow = mb.simulate(model, "ground", snapshots=3000, seed=8)
+    result = mb.estimate(shadow, target="ground", quantities=["fidelity"])
+    ok, worst = within(result.fidelity.values, result.fidelity_err.values, 1.0)  # same state: F = 1
+    assert ok, worst
+    assert result.fidelity.attrs["target"] == "ground"
+    with pytest.raises(mb.InputError, match="^target: the state has 3 qubits"):
+        mb.estimate(shadow, target=np.ones(8))
+    path = tmp_path / "gs.nc"
+    shadow_file = mb.simulate(model, "neel", snapshots=2000, seed=9)
+    from manybody.io.shadow import write_shadow
+
+    write_shadow(shadow_file, path)
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    out = subprocess.run([sys.executable, "-m", "manybody", "estimate", str(path), "--target", "010101",
+                          "-o", str(tmp_path / "r.nc")], capture_output=True, text=True, env=env, timeout=300)
+    assert out.returncode == 0, out.stderr
+    assert "fidelity" in out.stdout
+    import xarray as xr
+
+    with xr.open_dataset(tmp_path / "r.nc") as written:  # the neel state is 010101: F = 1
+        ok, worst = within(written.fidelity.values, written.fidelity_err.values, 1.0)
+    assert ok, worst
