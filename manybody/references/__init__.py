@@ -55,7 +55,8 @@ def choose_method(model, method: str = "auto") -> str:
             return "dense"
         if not model.lattice.is_one_dimensional:
             raise InputError(f"{n} qubits are beyond the dense reference (at most {MAX_EXACT_QUBITS}) and a "
-                             f"{model.lattice.kind} lattice is not a chain or ladder for a matrix-product one")
+                             f"{model.lattice.kind} lattice is not a chain or ladder for a matrix-product one "
+                             "(method 'mps' forces it, e.g. for a narrow strip in snake order)")
         return "mps"
     return method
 

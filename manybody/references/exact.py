@@ -92,27 +92,45 @@ def energy_variance(ham: PauliExpansion, psi: np.ndarray) -> float:
 PAULI_MATRICES = np.array([_SIGMA["X"], _SIGMA["Y"], _SIGMA["Z"]])
 
 
-def local_pauli_moments(psi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def pauli_images(psi: np.ndarray, qubits) -> np.ndarray:
+    """sigma^a_q psi for a = X, Y, Z and the given qubits, as a real view (3 |qubits|, 2 * 2^n).
+
+    X flips qubit q, Z signs it, Y = -i Z X; in the real view (re, im
+    interleaved) Re<a|b> is a plain dot product.
+    """
+    qubits = list(qubits)
+    phi = np.empty((3, len(qubits), len(psi)), dtype=complex)
+    sign = np.array([1.0, -1.0])[None, :, None]
+    for k, q in enumerate(qubits):  # qubit q is axis 1 of the block
+        block = psi.reshape(2**q, 2, -1)
+        phi[0, k] = block[:, ::-1].ravel()
+        phi[1, k] = (-1j * sign * block[:, ::-1]).ravel()
+        phi[2, k] = (sign * block).ravel()
+    return phi.reshape(3 * len(qubits), -1).view(float)
+
+
+def local_pauli_moments(psi: np.ndarray, max_bytes: int = 1 << 29) -> tuple[np.ndarray, np.ndarray]:
     """<sigma^a_q> (3, n) and <sigma^a_q sigma^b_r> (3, 3, n, n; NaN where q = r) of a dense state.
 
     With phi_(a,q) = sigma^a_q psi, <sigma^a_q sigma^b_r> = <phi_(a,q)|phi_(b,r)>
     for q != r (the two Paulis commute and are Hermitian): every two-point
-    function is one entry of the Gram matrix of the 3n vectors phi, one
-    matrix product. Memory 3 n 2^n complex numbers.
+    function is an entry of the Gram matrix of the 3n vectors phi, built by
+    matrix products over blocks of qubits whose images fit in ``max_bytes``.
     """
     psi = np.asarray(psi, dtype=complex)
     n = int(np.log2(len(psi)))
-    phi = np.empty((3, n, len(psi)), dtype=complex)
-    sign = np.array([1.0, -1.0])[None, :, None]
-    for q in range(n):  # X flips qubit q, Z signs it, Y = -i Z X (qubit q is axis 1 of the block)
-        block = psi.reshape(2**q, 2, -1)
-        phi[0, q] = block[:, ::-1].ravel()
-        phi[1, q] = (-1j * sign * block[:, ::-1]).ravel()
-        phi[2, q] = (sign * block).ravel()
-    flat = phi.reshape(3 * n, -1).view(float)  # Re<a|b> = a_re.b_re + a_im.b_im: one real matrix product
-    mag = (flat @ psi.view(float)).reshape(3, n)
-    gram = (flat @ flat.T).reshape(3, n, 3, n).transpose(0, 2, 1, 3)
-    corr = np.array(gram)
+    size = max(1, int(max_bytes // (3 * 16 * len(psi))))
+    blocks = [np.arange(s, min(n, s + size)) for s in range(0, n, size)]
+    mag = np.empty((3, n))
+    corr = np.empty((3, 3, n, n))
+    for i, qa in enumerate(blocks):
+        fa = pauli_images(psi, qa)
+        mag[:, qa] = (fa @ psi.view(float)).reshape(3, len(qa))
+        for qb in blocks[i:]:
+            fb = fa if qb is qa else pauli_images(psi, qb)
+            gram = (fa @ fb.T).reshape(3, len(qa), 3, len(qb)).transpose(0, 2, 1, 3)
+            corr[:, :, qa[:, None], qb[None, :]] = gram
+            corr[:, :, qb[:, None], qa[None, :]] = gram.transpose(1, 0, 3, 2)
     corr[:, :, np.arange(n), np.arange(n)] = np.nan
     return mag, corr
 

@@ -70,5 +70,5 @@ def prepare(model, state, times, kind: str, bond_dim: int, cutoff: float, dt: fl
         states, trotter = exact.evolve_mps(model.hamiltonian, psi, times, dt=dt, bond_dim=bond_dim, cutoff=cutoff)
     except ValueError as exc:
         raise InputError(f"{model.spec.source}: {exc}") from None
-    info.update(method="TEBD", time_step=dt, trotter_order=4, trotter_error=trotter)
+    info.update(method="TEBD", time_step=dt, trotter_order=4, trotter_error=float(trotter))
     return list(zip(times, states)), info

@@ -167,3 +167,14 @@ def test_reference_rejects_bad_input():
     big = model_of('kind = "square"\nsize = [5, 5]', 'kind = "tfim"')
     with pytest.raises(InputError, match="not a chain or ladder"):
         reference(big, "zero")
+
+
+def test_pauli_moments_in_qubit_blocks_equal_one_block():
+    # Large states build the Gram matrix block by block; any block size must give the same numbers.
+    psi = random_state(8, 4)
+    mag, corr = exact.local_pauli_moments(psi)
+    for max_bytes in (1, 3 * 16 * 256 * 3):  # one qubit per block, three qubits per block
+        m, c = exact.local_pauli_moments(psi, max_bytes=max_bytes)
+        assert np.allclose(m, mag, atol=1e-14)
+        assert np.array_equal(np.isnan(c), np.isnan(corr)) and np.allclose(np.nan_to_num(c), np.nan_to_num(corr))
+    assert np.isclose(corr[2, 0, 1, 6], np.vdot(psi, kron_string({1: "Z", 6: "X"}, 8) @ psi).real, atol=1e-12)
