@@ -99,7 +99,7 @@ def mps_case():
 
     from manybody.references.prepare import prepare
 
-    states, _ = prepare(model, "zero", [2.0], "mps", 128, 1e-10)
+    states, _ = prepare(model, "zero", parse_time_grid("0:2:20"), "mps", 128, 1e-10)  # the same TEBD run
     psi = states[-1][1]
     # quimb's correlation() is the connected one, <A_i B_j> - <A_i><B_j>
     ours_zz = ds.connected_correlation.sel(axis_a="Z", axis_b="Z").isel(time=-1).values

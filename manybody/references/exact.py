@@ -3,7 +3,7 @@
 Dense state vectors (exact diagonalization with scipy, evolution with
 ``expm_multiply``) for small systems; matrix product states (quimb DMRG and
 TEBD) for chains and ladders. Basis index convention: qubit 0 is the most
-significant bit, as in ``numpy.kron`` order (DESIGN.md section 2).
+significant bit, as in ``numpy.kron`` order (docs/design.md section 2).
 """
 
 from __future__ import annotations
