@@ -91,22 +91,30 @@ class Shadow:
             return 0
         lookup, total = check.RecordCheck(np.zeros(0), self.origin), 0
         for start in range(0, self.n_records, 1 << 20):
-            counts = lookup.counts(self.counts[start:start + (1 << 20)], start)
+            counts = lookup.counts(self._read(self.counts, start, 1 << 20, "count"), start)
             exact = len(counts) == 0 or int(counts.max()) * len(counts) < 2**63  # int64 sum cannot wrap
             total += int(counts.sum()) if exact else int(counts.astype(object).sum())
         return total
+
+    def _read(self, array, start: int, size: int, name: str) -> np.ndarray:
+        """array[start:start + size] as numpy; a damaged file (a chunk that fails to inflate) is an InputError."""
+        try:
+            return np.asarray(array[start:start + size])
+        except (OSError, RuntimeError, ValueError) as exc:
+            reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+            raise InputError(f"{self.origin or 'the shadow'}: variable {name} cannot be read at records {start} to "
+                             f"{min(start + size, self.n_records) - 1}; the file is damaged ({reason})") from None
 
     def _checked(self, size: int, outcomes: bool = True):
         """(setting ids, positions in ``settings``, outcomes or None, counts) per chunk, ids and counts checked."""
         lookup = check.RecordCheck(self.settings.ids, self.origin)
         for start in range(0, self.n_records, size):
-            sl = slice(start, start + size)
-            ids = np.asarray(self.record_setting[sl])
+            ids = self._read(self.record_setting, start, size, "record_setting")
             positions = lookup.positions(ids, start)
-            counts = lookup.counts(self.counts[sl], start)
+            counts = lookup.counts(self._read(self.counts, start, size, "count"), start)
             bits = None
             if outcomes:
-                bits = np.asarray(self.outcomes[sl], dtype=np.uint8)
+                bits = self._read(self.outcomes, start, size, "outcome").astype(np.uint8, copy=False)
                 if self.packed:
                     bits = unpack_outcomes(bits, self.n_qubits)
             yield ids.astype(np.int64, copy=False), positions, bits, counts
@@ -226,7 +234,8 @@ class ShadowWriter:
             f.dimensions["qubit"] = n_qubits
         f.dimensions["outcome_byte"] = -(-n_qubits // 8)
         c = self.chunk_records
-        opts = {"compression": "gzip", "compression_opts": 1, "shuffle": True}
+        # Fletcher-32 checksums per chunk: a damaged record chunk is refused, never read as other values
+        opts = {"compression": "gzip", "compression_opts": 1, "shuffle": True, "fletcher32": True}
         f.create_variable("record_setting", ("record",), dtype="i8", chunks=(c,), **opts).attrs["meaning"] = \
             "id of the record's setting (setting_id)"
         var = f.create_variable("outcome", ("record", "outcome_byte"), dtype="u1",
@@ -290,7 +299,8 @@ class ShadowWriter:
                 if d not in f.dimensions:
                     f.dimensions[d] = size
         for name, (dims, values, attrs) in data.items():
-            kw = {"compression": "gzip", "compression_opts": 4} if values.ndim and values.size > 1024 else {}
+            kw = ({"compression": "gzip", "compression_opts": 4, "fletcher32": True}
+                  if values.ndim and values.size > 1024 else {})
             var = f.create_variable(name, dims, dtype=values.dtype, **kw)
             var[...] = values
             for key, value in attrs.items():

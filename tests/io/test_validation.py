@@ -201,3 +201,31 @@ def test_label_time_must_be_a_finite_number():
         with pytest.raises(InputError, match="time must be a finite number"):
             parse_labels([item])
     assert parse_labels(["run=nan"]) == {"run": "nan"}  # other keys keep non-numbers as text
+
+
+# ----------------------------------------------------------------- damaged bytes
+def test_damaged_bytes_in_the_records(tmp_path):
+    ens = LocalEnsemble(8)
+    rng = np.random.default_rng(3)
+    records = 100000
+    shadow = Shadow(ensemble=ens, settings=ens.draw(20, rng), qubit_site=np.arange(8),
+                    record_setting=rng.integers(0, 20, records), counts=rng.integers(1, 5, records),
+                    outcomes=rng.integers(0, 2, (records, 8), dtype=np.uint8))
+    good = tmp_path / "good.nc"
+    write_shadow(shadow, good)
+    data = good.read_bytes()
+    messages = []
+    for k in range(12):  # 12 places spread over the file, 32 random bytes each
+        damaged_bytes = bytearray(data)
+        at = (k + 1) * len(data) // 14
+        damaged_bytes[at:at + 32] = rng.integers(0, 256, 32, dtype=np.uint8).tobytes()
+        path = tmp_path / f"bad{k}.nc"
+        path.write_bytes(bytes(damaged_bytes))
+        try:
+            for _ in read_shadow(path).chunks():  # whole HDF5 chunks: small slices would inflate each many times
+                pass
+        except InputError as exc:
+            assert "\n" not in str(exc) and str(exc).startswith(str(path))
+            messages.append(str(exc))
+    # deflate streams carry an Adler-32 checksum (RFC 1950), so damaged chunks are found when read
+    assert any("cannot be read at records" in m and "the file is damaged" in m for m in messages), messages
