@@ -8,21 +8,27 @@ INVENTED DATA. The "Harrowgate cold-atom lab" does not exist. Its two runs:
 2. ground state: a 3 x 3 Heisenberg patch, measured in random local bases.
 
 Everything is simulated here (exact state vectors); the outputs land in one
-folder with a short printed guide to them.
+folder with a short printed guide to them, together with the two model
+specs and an example records file (``run7.csv``, see
+:func:`example_records`) so that the README's commands run in that folder.
 """
 
 from __future__ import annotations
 
+import csv
 import os
+import shutil
 import time
 
 from hamiltonians.spec import load_model
 from manybody.estimation.calibration import Calibration
 from manybody.estimation.driver import estimate, parse_subsystems
+from manybody.io.files import atomic_path
 from manybody.io.results import combine_series, write_dataset
 from manybody.io.shadow import read_shadow
 from manybody.references.dataset import reference_dataset
-from manybody.reporting.figures import summary_table, write_report
+from manybody.reporting.figures import write_report
+from manybody.reporting.summary import summary_table
 from manybody.simulation.experiment import Noise, prepare_states, simulate
 
 HERE = os.path.dirname(os.path.abspath(__file__))
@@ -38,12 +44,53 @@ def _spec(name: str) -> str:
     raise FileNotFoundError(name)
 
 
+SPEC_NAMES = ("tfim_chain.toml", "heisenberg_patch.toml")
+EXAMPLE_RECORDS = "run7.csv"
+
+
+def example_records(path: str, shots: int = 10, seed: int = 7070) -> None:
+    """Write the shipped example records (INVENTED DATA) to ``path``: CSV ``setting,outcome,count``.
+
+    ``shots`` per setting (200 settings), one row per distinct outcome of a setting.
+    The settings are those of ``manybody prepare tfim_chain.toml --ensemble
+    shallow --depth 1 --settings 200 --seed 7``; the state is |0...0> of the
+    12-site chain evolved to t = 0.5 (hbar = 1), so the README's
+    ``manybody ingest run7.csv --settings settings.nc ... --label time=0.5``
+    gives a meaningful shadow.
+    """
+    import manybody as mb
+
+    chain = load_model(_spec("tfim_chain.toml"))
+    settings = mb.draw_settings(chain, "shallow", 1, 200, 7)
+    shadow = mb.simulate(chain, "zero", None, "shallow", 1, shots=shots, times=[0.5], settings=settings,
+                         seed=seed)[0]
+    with atomic_path(path, ".csv") as tmp:
+        with open(tmp, "w", newline="") as fh:
+            out = csv.writer(fh)
+            out.writerow(["setting", "outcome", "count"])
+            for ids, bits, counts in shadow.records():
+                words = ["".join(map(str, row)) for row in bits]
+                out.writerows(zip(ids.tolist(), words, counts.tolist()))
+
+
+def copy_inputs(out_dir: str) -> list[str]:
+    """The model specs and the example records, copied into ``out_dir`` (the README runs from there)."""
+    os.makedirs(out_dir, exist_ok=True)
+    written = []
+    for name in SPEC_NAMES + (EXAMPLE_RECORDS,):
+        path = os.path.join(out_dir, name)
+        with atomic_path(path, os.path.splitext(name)[1]) as tmp:
+            shutil.copyfile(_spec(name), tmp)
+        written.append(path)
+    return written
+
+
 def run_demo(out_dir: str, quick: bool = False, seed: int = 2026, say=print, progress=None) -> dict:
     start = time.perf_counter()
     snapshots = 4000 if quick else 20000
     times = [0.0, 0.5, 1.0] if quick else [0.0, 0.25, 0.5, 0.75, 1.0, 1.5]
     noise = Noise(p01=0.01, p10=0.01)
-    out = {}
+    out = {"inputs": copy_inputs(out_dir)}
 
     say("Harrowgate cold-atom lab (INVENTED DATA): run 1, quench of a 12-site Ising chain")
     chain = load_model(_spec("tfim_chain.toml"))
@@ -82,12 +129,14 @@ def run_demo(out_dir: str, quick: bool = False, seed: int = 2026, say=print, pro
     say("")
     say(f"done in {elapsed:.0f} s; everything is in {out_dir}/")
     say(f"quench ({len(times)} times, {snapshots} snapshots each, robust to 1% readout errors):")
-    say("  " + summary_table(results, exact).replace("\n", "\n  "))
-    say(f"  figures: {os.path.join(qdir, 'report')}/series.png shows S2(t) growing and ZZ correlations "
-        "against the exact evolution (dashed)")
+    say("  " + summary_table(results, exact, per_site=False).replace("\n", "\n  "))
+    say(f"  figures: {os.path.join(qdir, 'report')}/renyi2_series.png shows S2(t) growing and "
+        "correlation_series.png the ZZ correlations against the exact evolution (dashed)")
     say(f"ground state of the 3 x 3 patch ({snapshots} snapshots):")
-    say("  " + summary_table(res2, ex2).replace("\n", "\n  "))
+    say("  " + summary_table(res2, ex2, per_site=False).replace("\n", "\n  "))
     say(f"  figures: {os.path.join(gdir, 'report')}/correlation_on_lattice.png shows the antiferromagnetic "
-        "pattern around site 0")
+        "pattern around site 0, estimate beside exact with z-scores")
     say("datasets: results.nc and exact.nc in each folder; open them with xarray (results - exact).")
+    say(f"inputs: {', '.join(SPEC_NAMES)} and the example records {EXAMPLE_RECORDS} (for the README's "
+        f"ingest step) in {out_dir}/")
     return out

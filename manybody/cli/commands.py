@@ -203,19 +203,27 @@ def cmd_plan(args) -> int:
 def cmd_report(args) -> int:
     import xarray as xr
 
-    from manybody.reporting.figures import save_report
+    from manybody.reporting.figures import figures, save_report
+    from manybody.reporting.frames import check_results, match_reference
 
-    def open_results(path):
-        if not os.path.exists(path):
-            raise InputError(f"{path}: no such file")
+    def open_dataset(path, what):
+        if not os.path.isfile(path):
+            raise InputError(f"{path}: no such file" if not os.path.exists(path) else f"{path}: is not a file")
         try:
-            return xr.open_dataset(path, engine="h5netcdf").load()
-        except Exception as exc:
-            raise InputError(f"{path}: not a readable results dataset ({type(exc).__name__})") from None
+            return xr.load_dataset(path, engine="h5netcdf")
+        except Exception as exc:  # noqa: BLE001 - h5py and xarray raise many kinds for foreign files
+            raise InputError(f"{path}: not a {what} (not a readable netCDF-4 file: {type(exc).__name__})") from None
 
-    results = open_results(args.results)
-    reference = open_results(args.reference) if args.reference else None
-    for path in save_report(mb.report(results, reference), results, args.output, reference):
+    results = open_dataset(args.results, "results dataset")
+    check_results(results, args.results)
+    reference = open_dataset(args.reference, "reference dataset") if args.reference else None
+    try:
+        match_reference(results, reference)
+    except InputError as exc:
+        raise InputError(f"{args.reference}: {str(exc).removeprefix('reference: ')}") from None
+    model = mb.load_model(args.model) if args.model else None
+    figs = figures(results, reference, time=args.time, axis=args.axis[0], model=model)
+    for path in save_report(figs, results, args.output, reference, fmt=args.format, dpi=args.dpi):
         print(f"wrote {path}")
     return 0
 

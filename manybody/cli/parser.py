@@ -202,14 +202,27 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=cmd_reference)
 
     p = sub.add_parser(
-        "report", formatter_class=_formatter, help="figures (PNG) and a summary table from results",
-        description=("Figures a group puts on a slide (correlation maps, energy density, Renyi-2 profile,\n"
-                     "S2(t) and correlations versus time for a series, mutual information) and summary.txt\n"
-                     "with error bars; with --reference the exact values are overlaid and listed."),
-        epilog="example:\n  manybody report results.nc --reference exact.nc -o report/")
+        "report", formatter_class=_formatter, help="figures and a summary table from results",
+        description=("Figures a group puts on a slide (correlation maps, correlations on the lattice with\n"
+                     "its bonds, magnetization, energy density, Renyi-2 profile by subsystem, mutual\n"
+                     "information, structure factor, S2(t) and C(t) for a series) and summary.txt with\n"
+                     "error bars. With --reference the exact values are drawn beside the estimates with\n"
+                     "z-scores (estimate - exact)/error; the reference must have the same sites, every\n"
+                     "time of the results (equal up to 1e-9) and every subsystem label, else it is refused.\n"
+                     "A series gives maps at --time T, or at up to four times spread over the series."),
+        epilog=("examples:\n  manybody report results.nc --reference exact.nc -o report/\n"
+                "  manybody report series.nc --reference exact.nc --time 0.5 --axis XX --format pdf -o report/"))
     p.add_argument("results", metavar="results.nc", help="dataset from 'manybody estimate'")
     p.add_argument("--reference", metavar="exact.nc", help="dataset from 'manybody reference'")
     p.add_argument("-o", "--output", required=True, metavar="DIR", help="folder for the figures and summary.txt")
+    p.add_argument("--time", type=float, metavar="T",
+                   help="maps at this time only, in units of 1/(energy unit of the couplings), hbar = 1")
+    p.add_argument("--axis", choices=("XX", "YY", "ZZ"), default="ZZ",
+                   help="Pauli axis of the correlation, magnetization and structure-factor figures (default ZZ)")
+    p.add_argument("--model", metavar="SPEC.toml",
+                   help="model spec for the bonds drawn on the lattice (default: sites at distance 1)")
+    p.add_argument("--format", choices=("png", "pdf", "svg"), default="png", help="figure format (default png)")
+    p.add_argument("--dpi", type=int, default=150, metavar="N", help="resolution of png figures (default 150)")
     p.set_defaults(func=cmd_report)
 
     p = sub.add_parser(
