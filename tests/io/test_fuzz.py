@@ -15,6 +15,7 @@ import os
 import tempfile
 
 import numpy as np
+import pytest
 import xarray as xr
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
@@ -26,7 +27,7 @@ from manybody.io.shadow import Shadow, read_shadow, write_shadow
 from manybody.measure.ensembles import GlobalEnsemble, LocalEnsemble, ShallowEnsemble, basis_strings
 from tests.helpers import chain
 
-FAST = settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+FAST = settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 
 def digest(path) -> str:
@@ -158,24 +159,22 @@ def test_fuzz_records_csv(data, block):
 
 
 # ----------------------------------------------------------------- shadow files
-_GOOD = {}
-
-
-def good_file(kind: str) -> str:
-    """One valid shadow file per ensemble, written once."""
-    if kind not in _GOOD:
-        ens = {"local": LocalEnsemble(3), "shallow": ShallowEnsemble(4, 2, chain(4)),
-               "global": GlobalEnsemble(2)}[kind]
+@pytest.fixture(scope="module")
+def good_files(tmp_path_factory):
+    """One valid shadow file per ensemble, written once for the module (pytest removes the folder)."""
+    folder = tmp_path_factory.mktemp("good")
+    paths = {}
+    for kind, ens in (("local", LocalEnsemble(3)), ("shallow", ShallowEnsemble(4, 2, chain(4))),
+                      ("global", GlobalEnsemble(2))):
         rng = np.random.default_rng(5)
         settings_ = ens.draw(4, rng)
         shadow = Shadow(ensemble=ens, settings=settings_, qubit_site=np.arange(ens.n_qubits),
                         record_setting=rng.integers(0, 4, 25), counts=rng.integers(1, 4, 25),
                         outcomes=rng.integers(0, 2, (25, ens.n_qubits), dtype=np.uint8),
                         label={"time": 0.25}, metadata={"noise": {"readout": 0.01}}, seed=3)
-        path = os.path.join(tempfile.mkdtemp(prefix="manybody-fuzz-"), f"{kind}.nc")
-        write_shadow(shadow, path)
-        _GOOD[kind] = path
-    return _GOOD[kind]
+        paths[kind] = str(folder / f"{kind}.nc")
+        write_shadow(shadow, paths[kind])
+    return paths
 
 
 ATTRS = ["file_kind", "schema_version", "ensemble", "depth", "n_qubits", "model_spec", "label", "metadata",
@@ -247,11 +246,11 @@ def check_consistent(shadow: Shadow):
     assert isinstance(shadow.label, dict) and isinstance(shadow.metadata, dict)
 
 
-@settings(max_examples=70, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+@settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.too_slow,
                                                                    HealthCheck.filter_too_much])
 @given(kind=st.sampled_from(["local", "shallow", "global"]), change=mutations())
-def test_fuzz_shadow_files(kind, change):
-    ds = xr.load_dataset(good_file(kind), engine="h5netcdf")
+def test_fuzz_shadow_files(good_files, kind, change):
+    ds = xr.load_dataset(good_files[kind], engine="h5netcdf")
     with tempfile.TemporaryDirectory() as folder:
         path, copy = os.path.join(folder, "bad.nc"), os.path.join(folder, "copy.nc")
         try:
