@@ -184,6 +184,16 @@ class Chunk:
         ens = self.setup.ensemble
         return ens.snapshot_values(codes, self.settings, self.where, self.bits) / self.setup.lam.of(codes)
 
+    def values_many(self, codes, lam=None) -> np.ndarray:
+        """Single-snapshot estimates of many Pauli strings (S, n), propagated together: (N, S) float.
+
+        ``lam`` (S,) are their eigenvalues when already known.
+        """
+        codes = np.atleast_2d(codes)
+        lam = np.array([self.setup.lam.of(c) for c in codes]) if lam is None else np.asarray(lam)
+        raw = self.setup.ensemble.snapshot_values_many(codes, self.settings, self.where, self.bits)
+        return raw / lam
+
     @cached_property
     def columns(self) -> np.ndarray:
         """One-site estimates f[s, axis, q] of sigma^axis_q: (N, 3, n).
@@ -196,22 +206,18 @@ class Chunk:
         if setup.local:
             exact32 = not setup.calibrated and len(self.pos) * 9 < 2**24
             return local_columns(self.basis, self.bits, setup.lam.inv_local(n), np.float32 if exact32 else np.float64)
-        f = np.empty((len(self.pos), 3, n))
-        for a in range(3):
-            for q in range(n):
-                f[:, a, q] = self.values(single_site_codes(q, a, n))
-        return f
+        codes = np.array([single_site_codes(q, a, n) for a in range(3) for q in range(n)])
+        return self.values_many(codes).reshape(len(self.pos), 3, n)
 
     @cached_property
     def near_values(self) -> np.ndarray:
         """Circuit ensembles: estimates of sigma^a_qa sigma^b_qb for the near pairs: (N, pairs, 3, 3)."""
         n = self.setup.n_qubits
         pairs = self.setup.near_pairs
-        vals = np.empty((len(self.pos), len(pairs), 3, 3))
+        codes = np.zeros((len(pairs), 3, 3, n), dtype=np.uint8)
         for j, (qa, qb) in enumerate(pairs):
-            for a in range(3):
-                for b in range(3):
-                    c = np.zeros(n, dtype=np.uint8)
-                    c[qa], c[qb] = BASIS_PAULI[a], BASIS_PAULI[b]
-                    vals[:, j, a, b] = self.values(c)
-        return vals
+            codes[j, :, :, qa] = BASIS_PAULI[:, None]
+            codes[j, :, :, qb] = BASIS_PAULI[None, :]
+        if not len(pairs):
+            return np.zeros((len(self.pos), 0, 3, 3))
+        return self.values_many(codes.reshape(-1, n)).reshape(len(self.pos), len(pairs), 3, 3)

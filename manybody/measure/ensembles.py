@@ -19,7 +19,7 @@ import numpy as np
 from manybody.measure.clifford import clifford_table
 from manybody.measure.eigenvalues import contract_support_chain, global_eigenvalue, local_eigenvalue, support_chain_key
 from manybody.measure.paulis import BASIS_LETTERS, BASIS_PAULI
-from manybody.measure.propagation import propagate_layers, propagate_tableau
+from manybody.measure.propagation import propagate_layers, propagate_tableau, snapshot_values_many
 
 N_TWO_QUBIT_CLIFFORDS = 11520
 #: the global ensemble tableau grows as 4 n^2 bits per setting; simulation as 2^n.
@@ -118,6 +118,14 @@ class Ensemble(ABC):
         parity = np.bitwise_xor.reduce(outcomes & mask[setting_index], axis=1)
         return (sign[setting_index] * (1 - 2 * parity.astype(np.int8))).astype(np.int8)
 
+    def snapshot_values_many(self, codes, settings: Settings, setting_index, outcomes) -> np.ndarray:
+        """<b|U P U^dag|b> of many strings (S, n) for every snapshot: (N, S) int8."""
+        codes = np.atleast_2d(codes)
+        out = np.empty((len(setting_index), len(codes)), dtype=np.int8)
+        for s, row in enumerate(codes):
+            out[:, s] = self.snapshot_values(row, settings, setting_index, outcomes)
+        return out
+
     def same_as(self, other) -> bool:
         """Whether ``other`` draws from the same ensemble (kind, qubits, depth, gate layout)."""
         return (self.kind, self.n_qubits, self.depth) == (other.kind, other.n_qubits, other.depth)
@@ -156,6 +164,9 @@ class LocalEnsemble(Ensemble):
 
     def final_paulis(self, codes, settings):
         return np.broadcast_to(codes, (len(settings), len(codes))), np.ones(len(settings), dtype=np.int8)
+
+    def snapshot_values_many(self, codes, settings, setting_index, outcomes):
+        return snapshot_values_many(np.atleast_2d(codes), settings.basis, None, None, setting_index, outcomes)
 
     def gates(self, settings, k):
         return _basis_gates(settings, k)
@@ -224,6 +235,10 @@ class ShallowEnsemble(Ensemble):
         if settings.gates is not None and settings.gates.shape[1]:
             return propagate_layers(codes, settings.gates, self.gate_qubits)
         return LocalEnsemble.final_paulis(self, codes, settings)
+
+    def snapshot_values_many(self, codes, settings, setting_index, outcomes):
+        return snapshot_values_many(np.atleast_2d(codes), settings.basis, settings.gates, self.gate_qubits,
+                                    setting_index, outcomes)
 
     def gates(self, settings, k):
         words = clifford_table(2).words

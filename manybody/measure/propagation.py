@@ -15,6 +15,7 @@ import numpy as np
 
 from hamiltonians.pauli import product_phase
 from manybody.measure.clifford import clifford_table
+from manybody.measure.paulis import BASIS_PAULI
 
 
 def propagate_layers(codes: np.ndarray, gates: np.ndarray, gate_qubits: np.ndarray):
@@ -40,6 +41,85 @@ def propagate_layers(codes: np.ndarray, gates: np.ndarray, gate_qubits: np.ndarr
         out[:, a] = new & 3
         out[:, b] = new >> 2
     return out, sign
+
+
+#: settings x strings x qubits handled at once by snapshot_values_many (bounds its temporaries)
+WINDOW_ENTRIES = 1 << 24
+
+
+def light_cone_windows(codes: np.ndarray, gate_qubits: np.ndarray):
+    """Each string's forward light cone as a window of qubits, and the gate slots inside it.
+
+    Returns sites (S, w) int (padded with -1), and per gate slot the strings it
+    acts on with the window positions of its two qubits: a list of
+    (slot, strings, position_a, position_b) in time order.
+    """
+    codes = np.asarray(codes)
+    cones, steps = [], {}
+    for s, row in enumerate(codes):
+        active = set(np.flatnonzero(row).tolist())
+        slots = []
+        for slot, (a, b) in enumerate(np.asarray(gate_qubits).tolist()):
+            if a in active or b in active:
+                active.update((a, b))
+                slots.append((slot, a, b))
+        cone = sorted(active)
+        cones.append(cone)
+        where = {q: i for i, q in enumerate(cone)}
+        for slot, a, b in slots:
+            steps.setdefault(slot, []).append((s, where[a], where[b]))
+    width = max((len(c) for c in cones), default=0)
+    sites = np.full((len(codes), max(width, 1)), -1, dtype=np.int64)
+    for s, cone in enumerate(cones):
+        sites[s, :len(cone)] = cone
+    gates = [(slot, *(np.array(col, dtype=np.int64) for col in zip(*steps[slot]))) for slot in sorted(steps)]
+    return sites, gates
+
+
+def snapshot_values_many(codes: np.ndarray, basis: np.ndarray, gates: np.ndarray | None, gate_qubits,
+                         setting_index: np.ndarray, outcomes: np.ndarray) -> np.ndarray:
+    """<b|U P U^dag|b> of many strings at once for circuits of two-qubit gates then local bases: (N, S) int8.
+
+    Each string is propagated inside its own light-cone window (a table look-up
+    per gate, vectorised over settings and over the strings a gate touches);
+    then it is visible when every window site carries the measured Pauli or I,
+    and its value is the sign times the parity of the outcome bits it covers
+    (docs/design.md section 3). basis (K, n) and gates (K, G) of the settings,
+    setting_index (N,) positions in them, outcomes (N, n). Strings go in
+    batches so that the settings x strings x window temporaries stay small.
+    """
+    codes = np.asarray(codes, dtype=np.uint8)
+    sites, steps = light_cone_windows(codes, gate_qubits if gates is not None else np.zeros((0, 2)))
+    step = max(1, WINDOW_ENTRIES // max(max(len(basis), len(setting_index)) * sites.shape[1], 1))
+    out = np.empty((len(setting_index), len(codes)), dtype=np.int8)
+    for lo in range(0, len(codes), step):
+        hi = min(lo + step, len(codes))
+        batch = [(slot, strings[keep] - lo, pa[keep], pb[keep]) for slot, strings, pa, pb in steps
+                 for keep in [(strings >= lo) & (strings < hi)] if keep.any()]
+        out[:, lo:hi] = _window_values(codes[lo:hi], sites[lo:hi], batch, basis, gates, setting_index, outcomes)
+    return out
+
+
+def _window_values(codes, sites, steps, basis, gates, setting_index, outcomes):
+    pad = sites < 0
+    where = np.where(pad, 0, sites)
+    window = np.where(pad, 0, np.take_along_axis(codes, where, axis=1)).astype(np.uint8)
+    win = np.broadcast_to(window, (len(basis),) + window.shape).copy()  # (K, S, w)
+    sign = np.ones((len(basis), len(codes)), dtype=np.int8)
+    if steps:
+        table = clifford_table(2)
+        for slot, strings, pa, pb in steps:
+            pc = win[:, strings, pa] + 4 * win[:, strings, pb]
+            g = gates[:, slot][:, None]
+            new = table.conj_code[g, pc]
+            sign[:, strings] *= table.conj_sign[g, pc]
+            win[:, strings, pa] = new & 3
+            win[:, strings, pb] = new >> 2
+    visible = np.all((win == 0) | (win == BASIS_PAULI[basis[:, where]]), axis=2)
+    sign = np.where(visible, sign, 0).astype(np.int8)
+    bits = outcomes[:, where] & (win != 0)[setting_index]  # (N, S, w); padding covers nothing
+    parity = np.bitwise_xor.reduce(bits, axis=2)
+    return sign[setting_index] * (1 - 2 * parity.astype(np.int8))
 
 
 def propagate_tableau(codes: np.ndarray, tableau_x, tableau_z, tableau_sign):

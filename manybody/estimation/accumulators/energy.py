@@ -3,8 +3,9 @@
 Per snapshot the energy estimate is sum_P c_P o_P (one number, so its error
 bar includes the covariances between terms); the density splits each term
 equally among the sites it acts on. The variance <H^2> - <H>^2 estimates
-<H^2> from the terms of H^2 and <H>^2 from pairs of snapshots of different
-settings (unbiased).
+<H^2> snapshot by snapshot from the terms of H and the products of near
+terms (:mod:`manybody.estimation.energy_variance`), and <H>^2 from pairs of
+snapshots of different settings (unbiased).
 """
 
 from __future__ import annotations
@@ -12,12 +13,14 @@ from __future__ import annotations
 import numpy as np
 
 from manybody.estimation.accumulators.base import Accumulator, pair_count, put
+from manybody.estimation.energy_variance import square_terms, square_values
 from manybody.estimation.kernels import local_products
 from manybody.estimation.sums import within_sums
-from manybody.measure.paulis import AXIS_OF_CODE, pauli_string_codes
+from manybody.measure.paulis import AXIS_OF_CODE
 from manybody.schema import term_table
 
-#: H^2 is expanded into a term table only up to this many terms (a tenth for circuit ensembles)
+#: the energy variance is estimated while the products of near terms have at most this many distinct
+#: strings (a tenth for circuit ensembles)
 MAX_SQUARED_TERMS = 20000
 
 
@@ -41,10 +44,10 @@ def term_values(codes, lam_terms, chunk) -> np.ndarray:
             axes = AXIS_OF_CODE[np.take_along_axis(codes[sel], sup, axis=1)]
             out[:, sel] = local_products(f, sup, axes)
         return out
-    ens = chunk.setup.ensemble
-    for t, c in enumerate(codes):
-        out[:, t] = 1.0 if weight[t] == 0 else ens.snapshot_values(c, chunk.settings, chunk.where,
-                                                                    chunk.bits) / lam_terms[t]
+    out[:, weight == 0] = 1.0
+    some = weight > 0
+    if some.any():
+        out[:, some] = chunk.values_many(codes[some], np.asarray(lam_terms)[some])
     return out
 
 
@@ -58,11 +61,9 @@ class Energy(Accumulator):
         lam = setup.lam
         self.codes, self.coeffs, self.density = term_table(ham, setup.qubit_site, setup.n_sites)
         self.lam_terms = np.array([lam.of(c) for c in self.codes])
-        h2 = (ham * ham).combined(atol=1e-12)
-        self.squared = None
-        if len(h2) <= (MAX_SQUARED_TERMS if setup.local else MAX_SQUARED_TERMS // 10):
-            c2 = pauli_string_codes(h2.x_bits, h2.z_bits)
-            self.squared = (c2, h2.real_if_close().real, np.array([lam.of(c) for c in c2]))
+        self.squared = square_terms(self.codes, self.coeffs, setup.ensemble, lam.of)
+        if len(self.squared.codes) > (MAX_SQUARED_TERMS if setup.local else MAX_SQUARED_TERMS // 10):
+            self.squared = None  # too many products of near terms: no energy variance
 
     @classmethod
     def build(cls, setup, options):
@@ -78,9 +79,11 @@ class Energy(Accumulator):
         else:
             self.sums.add("energy_within", chunk.onehot, energy**2)
         self.sums.add("energy_sq_snap", chunk.onehot, energy**2)
+        if self.setup.calibrated and self.setup.local:  # per-term means for the calibration's error
+            self.sums.add("terms", chunk.onehot, values)
         if self.squared is not None:
-            codes2, coeffs2, lam2 = self.squared
-            self.sums.add("h2", chunk.onehot, term_values(codes2, lam2, chunk) @ coeffs2)
+            h2 = square_values(values, energy, self.squared, lambda codes, lam: term_values(codes, lam, chunk))
+            self.sums.add("h2", chunk.onehot, h2)
 
     def finish(self):
         if "energy" in self.per_setting:
@@ -95,6 +98,15 @@ class Energy(Accumulator):
             mean_sq = (s["energy"] ** 2 - s["energy_within"]) / pair_count(s)
             out["energy_variance"] = s["h2"] / count - mean_sq
         return out
+
+    def calibration_gradients(self, full, counts):
+        """d/d ln lambda_q of sum_P c_P <P>: -sum over the terms P acting on q of c_P <P> (and per site)."""
+        if "terms" not in self.sums:
+            return {}
+        mean = self.sums.data["terms"].sum(axis=0) / counts["n"].sum()  # (T,)
+        support = (self.codes != 0).astype(float)  # (T, n)
+        return {"energy": -(self.coeffs * mean) @ support,
+                "energy_density": -(self.density * mean[:, None]).T @ support}
 
     def variables(self, full, err, data, coords):
         put(data, "energy", (), full["energy"], err)
