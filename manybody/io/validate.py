@@ -230,6 +230,9 @@ class RecordCheck:
             raise InputError(f"{self.where}: variable record_setting holds {ids.dtype} values; expected integers")
         if not len(ids):
             return np.zeros(0, dtype=np.int64)
+        raw = ids
+        if ids.dtype == np.uint64:  # compare as int64: mixed uint64/int64 would go through float64
+            ids = np.minimum(ids, np.uint64(2**62 + 1)).astype(np.int64)
         if self.identity:
             if ids.min() >= 0 and ids.max() < self.n:
                 return ids.astype(np.int64, copy=False)
@@ -240,7 +243,7 @@ class RecordCheck:
             if not bad.any():
                 return self.order[at]
         r = int(np.argmax(bad))
-        raise InputError(f"{self.where}: variable record_setting names setting {ids[r]} at record {start + r}, "
+        raise InputError(f"{self.where}: variable record_setting names setting {raw[r]} at record {start + r}, "
                          "which is not in variable setting_id")
 
     def counts(self, counts, start: int) -> np.ndarray:

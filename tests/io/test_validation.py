@@ -229,3 +229,17 @@ def test_damaged_bytes_in_the_records(tmp_path):
             messages.append(str(exc))
     # deflate streams carry an Adler-32 checksum (RFC 1950), so damaged chunks are found when read
     assert any("cannot be read at records" in m and "the file is damaged" in m for m in messages), messages
+
+
+def test_large_ids_stored_unsigned(tmp_path):
+    # ids above 2^53 are not exact in float64 (IEEE 754 double: 53-bit significand), so they must be
+    # compared as integers even when a file stores record_setting as uint64
+    ids = [2**60 + 1, 2**60 + 2, 2**60 + 3, 5]
+    shadow = make(LocalEnsemble(3), ids=ids)
+    path = damaged(tmp_path, shadow, lambda ds: ds.assign(record_setting=ds["record_setting"].astype(np.uint64)))
+    back = read_all(path)
+    got = np.concatenate([p for p, _, _ in back.chunks()])
+    assert np.array_equal(back.settings.ids[got], shadow.record_setting)
+    bad = damaged(tmp_path, shadow, lambda ds: ds.assign(
+        record_setting=ds["record_setting"].astype(np.uint64) + np.uint64(1)), "bad2.nc")
+    one_sentence(bad, "which is not in variable setting_id")
