@@ -109,7 +109,7 @@ def run_demo(out_dir: str, quick: bool = False, seed: int = 2026, say=print, pro
                            [{"time": t} for t, _, _ in states])
     write_dataset(results, os.path.join(qdir, "results.nc"))
     write_dataset(exact, os.path.join(qdir, "exact.nc"))
-    figures = write_report(results, os.path.join(qdir, "report"), exact)
+    figures = write_report(results, os.path.join(qdir, "report"), exact, time=times[-1], dpi=120)  # maps at t_last
     out["quench"] = (results, exact, figures)
 
     say("run 2, ground state of a 3 x 3 Heisenberg patch")
@@ -122,7 +122,7 @@ def run_demo(out_dir: str, quick: bool = False, seed: int = 2026, say=print, pro
     ex2 = reference_dataset(patch, psi, sub2)
     write_dataset(res2, os.path.join(gdir, "results.nc"))
     write_dataset(ex2, os.path.join(gdir, "exact.nc"))
-    figures2 = write_report(res2, os.path.join(gdir, "report"), ex2)
+    figures2 = write_report(res2, os.path.join(gdir, "report"), ex2, dpi=120)
     out["ground_state"] = (res2, ex2, figures2)
 
     elapsed = time.perf_counter() - start

@@ -118,7 +118,7 @@ def _chain_panels(fig, d, values, err, exact, ylabel):
         z = z_scores(values, err, exact)
         axes[1].axhline(0, color="0.6", lw=1)
         axes[1].plot(sites, z, "o", color="C3")
-        axes[1].set_ylim(*symmetric_limits(z, floor=3.0))
+        axes[1].set_ylim(*(1.15 * np.array(symmetric_limits(z, floor=3.0))))
         axes[1].set_ylabel("$z$")
         axes[1].set_title(Z_LABEL, fontsize=9)
     ax.set_ylabel(ylabel)
@@ -165,7 +165,7 @@ def renyi_profile(d, ref=None):
     size = d.subsystem_size.values
     order = np.argsort(size, kind="stable")
     pos = np.arange(len(order))
-    fig = _figure(d, "entanglement profile", max(6.0, 0.55 * len(order) + 2.5), 4.2)
+    fig = _figure(d, "entanglement profile", max(8.0, 0.55 * len(order) + 2.5), 4.2)
     ax = fig.subplots()
     ax.errorbar(pos, d.renyi2.values[order], yerr=d.renyi2_err.values[order], fmt="o", capsize=3,
                 label="estimate")
@@ -190,31 +190,34 @@ def mutual_information_map(d, ref=None):
 
 
 def structure_factor_plot(d, ref=None, axis="Z"):
-    """S^αα(q) = (1/n) Σ_ab e^{iq·(r_a - r_b)} <σ^α_a σ^α_b> (with <σ^α_a σ^α_a> = 1) on the reciprocal lattice."""
+    """S^αα(q) = (1/n) Σ_ab e^{iq·(r_a - r_b)} <σ^α_a σ^α_b> (with <σ^α_a σ^α_a> = 1) on the reciprocal lattice.
+
+    q is drawn in units of π per lattice spacing (q = π is the zone boundary of a chain or square lattice).
+    """
     a = axis.lower()
-    formula = (rf"$S^{{{a}{a}}}(\mathbf{{q}}) = \frac{{1}}{{n}}\sum_{{ab}} e^{{i\mathbf{{q}}\cdot(\mathbf{{r}}_a"
+    formula = (rf"$S^{{{a}{a}}}(\mathbf{{q}}) = (1/n)\,\Sigma_{{ab}}\, e^{{i\mathbf{{q}}\cdot(\mathbf{{r}}_a"
                rf" - \mathbf{{r}}_b)}}\langle {pauli(axis, 'a')} {pauli(axis, 'b')} \rangle$")
     s, err = d.structure_factor.sel(axis=axis).values, d.structure_factor_err.sel(axis=axis).values
     exact = None if ref is None or "structure_factor" not in ref else ref.structure_factor.sel(axis=axis).values
     label = rf"$S^{{{a}{a}}}(\mathbf{{q}})$"
-    qx, qy = d.qx.values, d.qy.values
+    qx, qy = d.qx.values / np.pi, d.qy.values / np.pi
     if np.allclose(qy, 0):
         fig = _figure(d, f"structure factor {formula}", 7, 4.2)
         ax = fig.subplots()
         ax.errorbar(qx, s, yerr=err, fmt="o", capsize=3, label="estimate")
         if exact is not None:
             ax.plot(qx, exact, "k_", ms=14, mew=2, linestyle="none", label="exact")
-        ax.set_xlabel(r"$q$ (1/lattice spacing)")
+        ax.set_xlabel(r"$q/\pi$ ($q$ in 1/lattice spacing)")
         ax.set_ylabel(label)
         ax.legend(fontsize=8)
         return fig
-    fig = _figure(d, f"structure factor {formula}", 5.4 if exact is None else 15, 4.6)
+    fig = _figure(d, f"structure factor {formula}", 5.4 if exact is None else 15, 5.0)
     q = xr.Dataset(coords={"x": ("site", qx), "y": ("site", qy)})
     axes = lattice_panels(fig, q, s, exact, err, np.zeros((0, 2), int), label, label,
                           signed=bool(np.nanmin(np.append(s, 0.0)) < 0))
     for ax in axes:
-        ax.set_xlabel(r"$q_x$ (1/lattice spacing)")
-        ax.set_ylabel(r"$q_y$ (1/lattice spacing)")
+        ax.set_xlabel(r"$q_x/\pi$ ($q$ in 1/lattice spacing)")
+        ax.set_ylabel(r"$q_y/\pi$")
         ax.xaxis.set_major_locator(AutoLocator())
         ax.yaxis.set_major_locator(AutoLocator())
     return fig
@@ -279,7 +282,11 @@ def save_report(figs: dict, results: xr.Dataset, out_dir, reference: xr.Dataset 
     if not 20 <= int(dpi) <= 1200:
         raise InputError(f"dpi {dpi}: expected a resolution between 20 and 1200 dots per inch", argument="dpi")
     text = summary_table(results, reference)  # checks the reference before anything is written
-    os.makedirs(out_dir, exist_ok=True)
+    try:
+        os.makedirs(out_dir, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"{out_dir}: cannot create the report folder ({exc.strerror or type(exc).__name__})",
+                         argument="output") from None
     written = []
     for name, fig in figs.items():
         path = os.path.join(out_dir, os.path.splitext(name)[0] + "." + fmt)

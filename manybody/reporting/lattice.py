@@ -110,7 +110,7 @@ def lattice_panels(fig, d, values, exact, error, bonds, label, title, mark=None,
     if signed:
         vmin, vmax = symmetric_limits(values, exact)
     else:
-        vmin, vmax = 0.0, symmetric_limits(values, exact)[1]
+        vmin, vmax, cmap = 0.0, symmetric_limits(values, exact)[1], SEQUENTIAL
     panels = [("estimate", values, vmin, vmax, cmap, label)]
     if exact is not None:
         panels.append(("exact", exact, vmin, vmax, cmap, label))

@@ -140,11 +140,11 @@ def test_structure_factor_on_reciprocal_lattice_with_normalisation():
     exact = mb.reference(model, "ground")
     figs = report.figures(ds, exact)
     fig = figs["structure_factor.png"]
-    assert r"\frac{1}{n}\sum_{ab}" in fig._suptitle.get_text()
+    assert r"(1/n)\,\Sigma_{ab}" in fig._suptitle.get_text()
     panels = [ax for ax in fig.axes if ax.get_title()]
-    assert len(panels) == 3 and panels[0].get_xlabel() == r"$q_x$ (1/lattice spacing)"
+    assert len(panels) == 3 and panels[0].get_xlabel() == r"$q_x/\pi$ ($q$ in 1/lattice spacing)"
     points = panels[1].collections[0].get_offsets()
-    np.testing.assert_allclose(np.sort(points[:, 0]), np.sort(exact.qx.values))
+    np.testing.assert_allclose(np.sort(points[:, 0]), np.sort(exact.qx.values / np.pi))
     # The exact S^zz(q) at the 9 points of the reciprocal lattice is what the middle panel shows.
     np.testing.assert_allclose(np.sort(panels[1].collections[0].get_array()),
                                np.sort(exact.structure_factor.sel(axis="Z").values))
