@@ -214,16 +214,22 @@ def test_werner_states(p, shots):
         assert float(r.ppt_significance[0]) < 4
 
 
-def test_two_bell_pairs_split_across_the_cut():
-    # Bell pairs on (0, 1) and (2, 3); A = {0, 2}, B = {1, 3}: rho_AB is maximally entangled of dimension
-    # d = 4, whose partial transpose has eigenvalues +1/d (10 times) and -1/d (6 times) (textbook), so
-    # p2 = 1, p3 = 1/16; checked against numpy too.
-    psi = np.kron(BELL, BELL)
-    rho = np.outer(psi, psi.conj()).reshape((2,) * 8).transpose(0, 2, 1, 3, 4, 6, 5, 7).reshape(16, 16)
-    p2, p3 = dense_moments(rho, [True, True, False, False])
-    assert np.isclose(p2, 1) and np.isclose(p3, 1 / 16)
-    shadow = make_shadow(psi, LocalEnsemble(4), 20000, seed=11)
-    r = pt_estimate(shadow, "0,2|1,3")
+@pytest.mark.parametrize("pairs", [2, 3])
+def test_bell_pairs_split_across_the_cut(pairs):
+    # Bell pairs on (0, 1), (2, 3), ...; A = the even qubits, B = the odd ones: rho_AB is maximally entangled
+    # of dimension d = 2^pairs, whose partial transpose has eigenvalues +1/d (d(d+1)/2 times) and -1/d
+    # (d(d-1)/2 times) (textbook), so p2 = 1, p3 = 1/d^2; checked against numpy too. pairs = 3 is the
+    # largest size accepted (6 qubits).
+    psi = BELL
+    for _ in range(pairs - 1):
+        psi = np.kron(psi, BELL)
+    k, d = 2 * pairs, 2**pairs
+    rho = np.outer(psi, psi.conj())
+    p2, p3 = dense_moments(rho, [q % 2 == 0 for q in range(k)])
+    assert np.isclose(p2, 1) and np.isclose(p3, 1 / d**2)
+    shadow = make_shadow(psi, LocalEnsemble(k), 20000, seed=11)
+    even, odd = ",".join(map(str, range(0, k, 2))), ",".join(map(str, range(1, k, 2)))
+    r = pt_estimate(shadow, f"{even}|{odd}")
     for name, value in (("pt_moment2", p2), ("pt_moment3", p3), ("ppt_violation", p2**2 - p3)):
         ok, worst = within(r[name].values, r[name + "_err"].values, value)
         assert ok, (name, worst)
