@@ -39,6 +39,26 @@ LATTICE_KEYS = ("kind", "size", "boundary", "order")
 TERM_KEYS = ("pauli", "on", "coefficient")
 TERM_TARGETS = ("sites", "bonds", "next_bonds")
 MAX_SITES = 100_000
+#: largest coupling magnitude: |c|^2 summed over many terms must stay far from float overflow
+MAX_COUPLING = 1e100
+#: the Pauli sum of a model (packed bit rows of every term) must fit in this much memory
+MAX_PAULI_SUM_BYTES = 2 * 2**30
+#: sites per unit cell and nearest / next-nearest coordination of each lattice (common practice, no source)
+_CELL = {"chain": (1, 2, 2), "ladder": (2, 3, 2), "square": (1, 4, 4), "triangular": (1, 6, 6),
+         "honeycomb": (2, 3, 6), "kagome": (3, 4, 4)}
+#: Pauli strings per bond (nearest, next-nearest) and per site, by model
+_TERMS = {"tfim": (1, 0, 1), "xxz": (3, 0, 1), "heisenberg": (3, 0, 0), "j1j2": (3, 3, 0), "xy": (2, 0, 1),
+          "kitaev": (1, 0, 0), "hubbard": (4, 0, 3), "custom": (1, 1, 1)}
+
+
+def pauli_sum_bytes(lattice_kind: str, cells: int, model_kind: str, custom_terms: int = 0) -> int:
+    """Memory of a model's Pauli sum before building it: terms x 2 bit rows x 8 bytes per 64 qubits."""
+    per_cell, z1, z2 = _CELL.get(lattice_kind, (1, 2, 2))
+    sites = cells * per_cell
+    qubits = sites * (2 if model_kind == "hubbard" else 1)
+    on_bond, on_next, on_site = _TERMS.get(model_kind, (1, 1, 1))
+    terms = (sites * (on_bond * z1 + on_next * z2) // 2 + on_site * sites) * max(1, custom_terms)
+    return terms * 2 * 8 * -(-qubits // 64)
 
 
 class SpecError(ValueError):
@@ -152,7 +172,7 @@ def parse_spec(text: str, source: str = "<spec>") -> ModelSpec:
         raise SpecError(f"{source}: lattice.boundary must be 'open' or 'periodic', or a list of {dims} of "
                         f"them, got {lat.get('boundary')!r}")
     order = _choice(lat.get("order", "row"), ORDERS, "lattice.order", source)
-    cells = int(np.prod(size))
+    cells = math.prod(size)  # Python integers: no overflow for absurd sizes
     if cells > MAX_SITES:
         raise SpecError(f"{source}: lattice.size {size} gives {cells} cells; at most {MAX_SITES} are allowed")
 
@@ -184,6 +204,15 @@ def parse_spec(text: str, source: str = "<spec>") -> ModelSpec:
         terms.append(Term(pauli, on, coeff))
     if mkind == "custom" and not terms:
         raise SpecError(f"{source}: a custom model needs at least one [[model.term]]")
+    for name, value in params + tuple((f"[[model.term]] {t.pauli}", t.coefficient) for t in terms):
+        if abs(value) > MAX_COUPLING:
+            raise SpecError(f"{source}: {name} = {value:g} is too large; couplings up to {MAX_COUPLING:g} in "
+                            "magnitude keep energies and their squares finite")
+    need = pauli_sum_bytes(lkind, cells, mkind, len(terms))
+    if need > MAX_PAULI_SUM_BYTES:
+        raise SpecError(f"{source}: a {lkind} of size {size} with the {mkind} model needs about "
+                        f"{need / 2**30:.1f} GiB for its Pauli sum; at most {MAX_PAULI_SUM_BYTES / 2**30:.0f} GiB "
+                        "fit on this machine, so choose a smaller lattice")
     return ModelSpec(lattice_kind=lkind, size=tuple(size), boundary=tuple(boundary), kind=mkind,
                      params=params, terms=tuple(terms), units=units, order=order, name=name,
                      text=text, source=source)

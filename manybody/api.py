@@ -269,25 +269,26 @@ def estimate_series(shadows, **kwargs):
 
 
 # --------------------------------------------------------------- references
-def reference(model, state="ground", times=None, subsystems=(), observables=None):
-    """Exact values in the results schema (dense state vectors, up to 20 qubits)."""
-    from manybody.io.results import combine_series
-    from manybody.references.dataset import reference_dataset
-    from manybody.simulation.experiment import prepare_states
+def reference(model, state="ground", times=None, subsystems=(), observables=None, method: str = "auto",
+              bond_dim: int = 128, cutoff: float = 1e-10, time_step: float = 0.05, progress=None):
+    """Exact values in the results schema: dense state vectors up to 20 qubits, matrix product states beyond.
+
+    ``times``: quench times (a list, or "T1,T2,..." or "START:STOP:COUNT");
+    ``method``: "auto", "dense" or "mps" (DMRG ground states, TEBD quenches);
+    ``bond_dim``, ``cutoff`` and ``time_step`` control the MPS methods.
+    """
+    from manybody.references import parse_time_grid
+    from manybody.references import reference as _reference
 
     if observables is not None:
         raise InputError("observables: not available in this version of manybody", argument="observables")
     model = _model(model)
-    if model.n_qubits > 20:
-        raise InputError(f"model: {model.n_qubits} qubits are too many for the dense reference (at most 20)",
-                         argument="model")
-    subs = subsystems_of(subsystems, model.n_sites)
-    if times is not None:
+    if isinstance(times, str):
+        times = parse_time_grid(times)
+    elif times is not None:
         times = [float(t) for t in np.atleast_1d(times)]
-    states = prepare_states(model, state, times, "dense")
-    labels = [{} if t is None else {"time": t} for t, _, _ in states]
-    datasets = [reference_dataset(model, psi, subs, lab) for (t, psi, _), lab in zip(states, labels)]
-    return combine_series(datasets, labels)
+    return _reference(model, state, times, subsystems_of(subsystems, model.n_sites), method=method,
+                      bond_dim=bond_dim, cutoff=cutoff, progress=progress, time_step=time_step)
 
 
 # ----------------------------------------------------------------- planning

@@ -11,6 +11,7 @@ import sys
 
 import manybody as mb
 from manybody.errors import InputError
+from manybody.io.files import refuse_overwrite
 
 
 def cmd_model(args) -> int:
@@ -65,6 +66,9 @@ def progress_bar(args, **kwargs):
 
 
 def cmd_prepare(args) -> int:
+    refuse_overwrite(args.output, [args.spec])
+    if args.qasm and os.path.exists(args.qasm) and not os.path.isdir(args.qasm):
+        raise InputError(f"--qasm {args.qasm}: is a file; give a folder for the OpenQASM files")
     prepared = mb.draw_settings(args.spec, args.ensemble, args.depth, args.settings, args.seed)
     prepared.to_netcdf(args.output)
     print(f"wrote {len(prepared)} settings ({prepared.ensemble.describe()}, seed {prepared.seed}) to {args.output}")
@@ -77,6 +81,7 @@ def cmd_prepare(args) -> int:
 def cmd_ingest(args) -> int:
     from manybody.io.records import BLOCK_BYTES
 
+    refuse_overwrite(args.output, [args.records, args.settings, args.model])
     size = os.path.getsize(args.records) if os.path.exists(args.records) else None
     shadow = mb.ingest(args.records, settings=args.settings, model=args.model, label=args.label, out=args.output,
                        progress=progress_bar(args, desc="records", unit="block",
@@ -117,9 +122,15 @@ def cmd_simulate(args) -> int:
     flips = [_probability(p, "--readout-error") for p in parts]
     depol = _probability(str(args.depolarizing), "--depolarizing")
     noise = Noise(p01=flips[0], p10=flips[-1], depolarizing=depol)
-    times = _times(args.times) if args.times else None
+    from manybody.references import parse_time_grid
+
+    times = parse_time_grid(args.times) if args.times else None
     model = mb.load_model(args.spec)
     depth = args.depth if args.ensemble == "shallow" else 0
+    if times is None:
+        refuse_overwrite(args.output, [args.spec])
+    elif os.path.exists(args.output) and not os.path.isdir(args.output):
+        raise InputError(f"-o {args.output}: is a file; with --times give a folder for the shadow files")
     paths = simulate(model, args.state, args.snapshots, args.ensemble, depth, args.shots, times, noise,
                      args.backend, args.bond_dim, args.seed, args.output,
                      progress=progress_bar(args, desc="settings", unit="chunk"))
@@ -133,6 +144,8 @@ def cmd_estimate(args) -> int:
 
     from manybody.io.results import combine_series, write_dataset
 
+    target_file = args.target if args.target and os.path.isfile(args.target) else None
+    refuse_overwrite(args.output, [*args.shadows, args.calibration, args.model, target_file])
     shadows = [mb.open_shadow(p) for p in args.shadows]
     calibration = None
     if args.calibration:
@@ -178,9 +191,13 @@ def _print_summary(path, ds):
 def cmd_reference(args) -> int:
     from manybody.io.results import write_dataset
 
-    times = _times(args.times) if args.times else None
-    write_dataset(mb.reference(args.spec, args.state, times, args.subsystems), args.output)
-    print(f"wrote {args.output}")
+    refuse_overwrite(args.output, [args.spec])
+    ds = mb.reference(args.spec, args.state, args.times, args.subsystems, method=args.method,
+                      bond_dim=args.bond_dim, cutoff=args.cutoff, time_step=args.time_step,
+                      progress=progress_bar(args, desc="times", unit="time"))
+    write_dataset(ds, args.output)
+    print(f"wrote {args.output} ({ds.attrs.get('method', 'exact')}"
+          + (f", {ds.sizes['time']} times" if "time" in ds.dims else "") + ")")
     return 0
 
 
@@ -192,6 +209,7 @@ def cmd_plan(args) -> int:
         depths = [int(d) for d in args.depths.split(",") if d.strip()]
     except ValueError:
         raise InputError(f"--depths {args.depths!r}: expected whole numbers separated by commas") from None
+    refuse_overwrite(args.output, [args.spec, args.pilot])
     ds = mb.plan(args.spec, args.error, depths, args.shots, args.subsystems, args.pilot, args.distance)
     print(format_plan(ds))
     if args.output:
@@ -231,6 +249,8 @@ def cmd_report(args) -> int:
 def cmd_demo(args) -> int:
     from manybody.demo import run_demo
 
+    if os.path.exists(args.output) and not os.path.isdir(args.output):
+        raise InputError(f"-o {args.output}: is a file; the demo writes a folder")
     run_demo(args.output, quick=args.quick, seed=args.seed,
              progress=progress_bar(args, desc="snapshots", unit="chunk"))
     return 0

@@ -35,6 +35,39 @@ class _Parser(argparse.ArgumentParser):
         raise InputError(f"{self.prog}: {message} (see '{self.prog} --help')")
 
 
+def whole(minimum: int = 0, maximum: int | None = None):
+    """An argparse type: a whole number within [minimum, maximum]."""
+    def convert(text):
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if value < minimum or (maximum is not None and value > maximum):
+            bound = f"from {minimum} to {maximum}" if maximum is not None else f"at least {minimum}"
+            raise argparse.ArgumentTypeError(f"{text} is out of range; allowed: {bound}")
+        return value
+    return convert
+
+
+def number(minimum: float, maximum: float, inclusive: bool = True):
+    """An argparse type: a finite number within [minimum, maximum] (or (minimum, maximum])."""
+    def convert(text):
+        try:
+            value = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        low_ok = value >= minimum if inclusive else value > minimum
+        if not (low_ok and value <= maximum):
+            bracket = "[" if inclusive else "("
+            raise argparse.ArgumentTypeError(f"{text} is out of range; allowed: {bracket}{minimum:g}, {maximum:g}]")
+        return value
+    return convert
+
+
+SEED = whole(0, 2**63 - 1)
+BOND_DIM = whole(1, 4096)
+
+
 def _formatter(prog):
     return argparse.RawDescriptionHelpFormatter(prog, max_help_position=32)
 
@@ -60,7 +93,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--exact", action="store_true",
                    help="also compute the ground-state energy: exact diagonalization up to "
                         "20 qubits, DMRG for larger chains and ladders")
-    p.add_argument("--bond-dim", type=int, default=128, metavar="CHI",
+    p.add_argument("--bond-dim", type=BOND_DIM, default=128, metavar="CHI",
                    help="largest DMRG bond dimension (default 128)")
     p.set_defaults(func=cmd_model)
 
@@ -76,12 +109,12 @@ def build_parser() -> argparse.ArgumentParser:
                 "  manybody plan demo_runs/tfim_chain.toml --error 0.05\n"
                 "  manybody plan demo_runs/tfim_chain.toml --error 0.02 --depths 0,1,2 --pilot gs.nc -o plan.nc"))
     p.add_argument("spec", metavar="SPEC.toml", help="model spec")
-    p.add_argument("--error", type=float, required=True, metavar="EPS", help="target one-sigma error")
+    p.add_argument("--error", type=number(1e-8, 1e6, inclusive=False), required=True, metavar="EPS", help="target one-sigma error")
     p.add_argument("--depths", default="0,1,2,3,4", metavar="D1,D2,...", help="candidate depths (default 0-4)")
-    p.add_argument("--distance", type=int, default=1, help="correlations up to this graph distance (default 1)")
+    p.add_argument("--distance", type=whole(1, 1000), default=1, help="correlations up to this graph distance (default 1)")
     p.add_argument("--subsystems", metavar="LIST", help="subsystems whose purities must reach EPS")
     p.add_argument("--pilot", metavar="SHADOW.nc", help="pilot shadow: use its estimated expectation values")
-    p.add_argument("--shots", type=int, default=1, help="shots per setting (default 1)")
+    p.add_argument("--shots", type=whole(1), default=1, help="shots per setting (default 1)")
     p.add_argument("-o", "--output", metavar="plan.nc", help="also write the table as a dataset")
     p.set_defaults(func=cmd_plan)
 
@@ -100,9 +133,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("spec", metavar="SPEC.toml", help="model spec (sets the qubits and the coupling graph)")
     p.add_argument("--ensemble", choices=("local", "shallow", "global"), default="local",
                    help="measurement ensemble (default local)")
-    p.add_argument("--depth", type=int, default=1, help="layers of two-qubit gates for --ensemble shallow (default 1)")
-    p.add_argument("--settings", type=int, required=True, metavar="K", help="number of settings to draw")
-    p.add_argument("--seed", type=int, default=None, help="random seed (default: fresh, recorded in the file)")
+    p.add_argument("--depth", type=whole(0, 1000), default=1, help="layers of two-qubit gates for --ensemble shallow (default 1)")
+    p.add_argument("--settings", type=whole(1), required=True, metavar="K", help="number of settings to draw")
+    p.add_argument("--seed", type=SEED, default=None, help="random seed (default: fresh, recorded in the file)")
     p.add_argument("-o", "--output", required=True, metavar="settings.nc", help="settings file to write")
     p.add_argument("--qasm", metavar="DIR", help="also write one OpenQASM 3 file per setting into DIR")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -143,20 +176,21 @@ def build_parser() -> argparse.ArgumentParser:
                 "      --snapshots 10000 --readout-error 0.02 -o quench/"))
     p.add_argument("spec", metavar="SPEC.toml", help="model spec")
     p.add_argument("--state", required=True, help="ground, neel, zero, one, plus, minus, or letters 0 1 + -")
-    p.add_argument("--snapshots", type=int, required=True, metavar="N", help="snapshots per shadow")
+    p.add_argument("--snapshots", type=whole(1), required=True, metavar="N", help="snapshots per shadow")
     p.add_argument("--ensemble", choices=("local", "shallow", "global"), default="local",
                    help="measurement ensemble (default local)")
-    p.add_argument("--depth", type=int, default=1, help="layers for --ensemble shallow (default 1)")
-    p.add_argument("--shots", type=int, default=1, metavar="S",
+    p.add_argument("--depth", type=whole(0, 1000), default=1, help="layers for --ensemble shallow (default 1)")
+    p.add_argument("--shots", type=whole(1), default=1, metavar="S",
                    help="shots per setting (default 1: every snapshot its own setting)")
-    p.add_argument("--times", metavar="T1,T2,...", help="quench times, in units of 1/(energy unit of the couplings), hbar = 1")
+    p.add_argument("--times", metavar="T1,T2,...", help="quench times (T1,T2,... or START:STOP:COUNT), in units of "
+                                                        "1/(energy unit of the couplings), hbar = 1")
     p.add_argument("--readout-error", metavar="P or P01,P10", default="0",
                    help="readout bit-flip probability, or the pair p(0 read as 1),p(1 read as 0)")
-    p.add_argument("--depolarizing", type=float, default=0.0, metavar="P",
+    p.add_argument("--depolarizing", type=number(0.0, 0.5), default=0.0, metavar="P",
                    help="single-qubit depolarizing probability just before the measurement")
     p.add_argument("--backend", choices=("auto", "dense", "mps"), default="auto", help="state representation")
-    p.add_argument("--bond-dim", type=int, default=128, metavar="CHI", help="largest MPS bond dimension")
-    p.add_argument("--seed", type=int, default=None, help="random seed (default: fresh, recorded in the files)")
+    p.add_argument("--bond-dim", type=BOND_DIM, default=128, metavar="CHI", help="largest MPS bond dimension")
+    p.add_argument("--seed", type=SEED, default=None, help="random seed (default: fresh, recorded in the files)")
     p.add_argument("-o", "--output", required=True, metavar="OUT", help="shadow file, or folder with --times")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_simulate)
@@ -183,7 +217,7 @@ def build_parser() -> argparse.ArgumentParser:
                         "state (neel, zero, ... or letters 0 1 + -), STATE@SPEC.toml, or a state file (.nc)")
     p.add_argument("--errors", choices=("jackknife", "median-of-means", "analytic"), default="jackknife",
                    help="error-bar method (default jackknife; the others apply to plain means)")
-    p.add_argument("--blocks", type=int, default=20, help="jackknife blocks of settings (default 20)")
+    p.add_argument("--blocks", type=whole(2, 10000), default=20, help="jackknife blocks of settings (default 20)")
     p.add_argument("--no-mutual-information", action="store_true", help="skip the mutual-information map")
     p.add_argument("-o", "--output", required=True, metavar="results.nc", help="results dataset to write")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -191,14 +225,26 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser(
         "reference", formatter_class=_formatter, help="exact values in the results schema",
-        description=("Exact values of the same quantities for a state of the model (dense, up to 20\n"
-                     "qubits), so that results - exact is one xarray expression."),
-        epilog="example:\n  manybody reference demo_runs/tfim_chain.toml --state ground --subsystems '0-5' -o exact.nc")
+        description=("Exact values of the same quantities for a state of the model, so that results - exact is\n"
+                     "one xarray expression: dense state vectors up to 20 qubits; beyond, matrix product\n"
+                     "states (DMRG ground states, TEBD quenches) for chains and ladders. --times takes a list\n"
+                     "or a grid START:STOP:COUNT, so that an exact curve can be drawn between measured times.\n"
+                     "Times are in units of 1/(energy unit of the couplings), hbar = 1."),
+        epilog=("examples:\n"
+                "  manybody reference demo_runs/tfim_chain.toml --state ground --subsystems '0-5' -o exact.nc\n"
+                "  manybody reference chain40.toml --state zero --times 0:2:41 --bond-dim 64 -o exact.nc"))
     p.add_argument("spec", metavar="SPEC.toml", help="model spec")
-    p.add_argument("--state", required=True, help="ground, neel, zero, one, plus, minus, or letters 0 1 + -")
-    p.add_argument("--times", metavar="T1,T2,...", help="quench times")
+    p.add_argument("--state", required=True, help="ground, neel, zero, one, plus, minus, letters 0 1 + -, or "
+                                                   "STATE@SPEC.toml (that state of another model)")
+    p.add_argument("--times", metavar="T1,T2,... or START:STOP:COUNT", help="quench times")
     p.add_argument("--subsystems", metavar="LIST", help="subsystems for purities and Renyi-2 entropies")
+    p.add_argument("--method", choices=("auto", "dense", "mps"), default="auto",
+                   help="dense state vectors or matrix product states (default auto: dense up to 20 qubits)")
+    p.add_argument("--bond-dim", type=BOND_DIM, default=128, metavar="CHI", help="largest MPS bond dimension (default 128)")
+    p.add_argument("--cutoff", type=number(0.0, 0.1), default=1e-10, help="MPS singular-value cutoff (default 1e-10)")
+    p.add_argument("--time-step", type=number(0.0, 10.0, inclusive=False), default=0.05, help="TEBD time step (default 0.05)")
     p.add_argument("-o", "--output", required=True, metavar="exact.nc", help="dataset to write")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_reference)
 
     p = sub.add_parser(
@@ -233,7 +279,7 @@ def build_parser() -> argparse.ArgumentParser:
         epilog="example:\n  manybody demo -o demo_out/")
     p.add_argument("-o", "--output", default="demo_runs/out", metavar="DIR", help="output folder (default demo_runs/out)")
     p.add_argument("--quick", action="store_true", help="fewer snapshots and times (about 20 s)")
-    p.add_argument("--seed", type=int, default=2026, help="random seed (default 2026)")
+    p.add_argument("--seed", type=SEED, default=2026, help="random seed (default 2026)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_demo)
     return parser
@@ -254,6 +300,9 @@ def in_flags(exc) -> str:
 
 
 def main(argv=None) -> int:
+    from manybody.io.files import install_signal_cleanup
+
+    install_signal_cleanup()  # SIGTERM removes temporary files like Ctrl-C does
     parser = build_parser()
     argv = sys.argv[1:] if argv is None else list(argv)
     debug = "--debug" in argv
@@ -268,7 +317,12 @@ def main(argv=None) -> int:
             raise
         print(f"error: {in_flags(exc)}", file=sys.stderr)
         return EXIT_BAD_INPUT
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
+        from manybody.io.files import Terminated
+
+        if isinstance(exc, Terminated):
+            print("terminated", file=sys.stderr)
+            return 128 + exc.signum
         print("interrupted", file=sys.stderr)
         return 130
 

@@ -16,6 +16,7 @@ import errno as _errno
 import io
 import os
 import re
+import shutil
 import signal
 import stat
 import tempfile
@@ -200,6 +201,44 @@ def atomic_path(path, suffix: str = ""):
         discard(tmp)
         raise
     settle(tmp, path, keep=True)
+
+
+@contextmanager
+def atomic_folder(path, keep=r"shadow_t.*\.nc"):
+    """with atomic_folder(p) as tmp: write files into tmp; they replace the folder p only if the block succeeds.
+
+    A series (one file per time) is then written as a unit: an interrupted run
+    leaves the previous series as it was, never a mix of two runs. An existing
+    ``p`` may hold only files whose names match ``keep`` (an earlier series);
+    anything else is refused before work starts, so that nothing of the
+    user's is deleted.
+    """
+    path = os.path.abspath(os.fspath(path))
+    if os.path.exists(path):
+        if not os.path.isdir(path):
+            raise InputError(f"-o {path}: is a file; a series needs a folder")
+        foreign = [name for name in os.listdir(path) if not re.fullmatch(keep, name)]
+        if foreign:
+            raise InputError(f"-o {path}: the folder holds other files ({foreign[0]}, ...); give a new or empty "
+                             "folder for the series")
+    parent = os.path.dirname(path)
+    os.makedirs(parent, exist_ok=True)
+    tmp = tempfile.mkdtemp(prefix=f".tmp-manybody-{os.getpid()}-", suffix="." + os.path.basename(path), dir=parent)
+    try:
+        yield tmp
+    except BaseException as exc:
+        shutil.rmtree(tmp, ignore_errors=True)
+        if isinstance(exc, OSError):
+            raise write_error(path, exc) from None
+        raise
+    old = None
+    if os.path.exists(path):
+        old = tempfile.mkdtemp(prefix=f".tmp-manybody-{os.getpid()}-old-", dir=parent)
+        os.replace(path, os.path.join(old, "series"))
+    os.chmod(tmp, 0o777 & ~_umask())
+    os.replace(tmp, path)
+    if old is not None:
+        shutil.rmtree(old, ignore_errors=True)
 
 
 # ----------------------------------------------------------------- HDF5 through a guarded file object

@@ -21,6 +21,7 @@ from dataclasses import replace
 import numpy as np
 
 from manybody.errors import InputError
+from manybody.io.files import atomic_folder
 from manybody.io.shadow import Shadow, ShadowWriter
 from manybody.measure.ensembles import make_ensemble
 from manybody.measure.prepare import coupling_of, fresh_seed
@@ -143,7 +144,7 @@ def output_paths(output: str, times) -> list[str]:
     """One file, or for a series one file per time inside the folder ``output``."""
     if times is None:
         return [output]
-    return [os.path.join(output, f"shadow_t{t:.4g}.nc") for t in times]
+    return [os.path.join(output, f"shadow_t{np.format_float_positional(t, trim='-')}.nc") for t in times]
 
 
 def simulate_shadows(model, state, n_snapshots: int | None = None, ensemble_kind: str = "local", depth: int = 0,
@@ -214,13 +215,20 @@ def simulate(model, state: str, n_snapshots: int, ensemble_kind: str = "local", 
     """Simulate randomized measurements of a state and write shadow files; returns the paths."""
     runs = simulate_shadows(model, state, n_snapshots, ensemble_kind, depth, shots, times, noise, backend,
                             bond_dim, seed, progress=progress)
-    paths = output_paths(output, times)
+    if times is None:
+        _write_runs(runs, [output])
+        return [output]
+    with atomic_folder(output) as folder:  # a series is written as a unit
+        _write_runs(runs, output_paths(folder, times))
+    return output_paths(output, times)
+
+
+def _write_runs(runs, paths):
     for (header, records), path in zip(runs, paths):
         with ShadowWriter(path) as out:
             for ids, bits, counts in records:
                 out.append(ids, bits, counts)
             out.finish(header)
-    return paths
 
 
 def simulate_in_memory(*args, **kwargs) -> list:
