@@ -46,6 +46,11 @@ def _frame_rows(d, r, where, rows, zs, per_site):
         for ax in d.axis.values:
             _scalar(d.sel(axis=ax), None if r is None else r.sel(axis=ax), "total_magnetization",
                     f"sum_i <σ{ax.lower()}_i>", rows, zs, where)
+    if "observable" in d and "observable_name" in d.dims:
+        for k, name in enumerate(d.observable_name.values):
+            r_obs = None if r is None or "observable" not in r or name not in r.observable_name.values else \
+                r.sel(observable_name=name)
+            _scalar(d.isel(observable_name=k), r_obs, "observable", f"<{name}>", rows, zs, where)
     if "renyi2" in d:
         for k, label in enumerate(d.subsystem.values):
             sub, rs = d.isel(subsystem=k), None if r is None else r.isel(subsystem=k)
@@ -75,7 +80,7 @@ def _header(results, reference) -> list[str]:
 
 
 def summary_table(results: xr.Dataset, reference: xr.Dataset | None = None, per_site: bool = True) -> str:
-    """Energy, energy per site, variance, fidelity, S2 of every subsystem, magnetization per site, z-scores.
+    """Energy, per site, variance, fidelity, observables, S2 of every subsystem, magnetization per site, z-scores.
 
     The reference is matched by time and subsystem label first (InputError on
     a mismatch), so no line compares values of different times or regions.
