@@ -196,13 +196,17 @@ def _calibration(calibration, shadow):
 
 
 def estimate(shadow, model=None, subsystems=(), observables=None, target=None, calibration=None,
-             errors: str = "jackknife", scheduler=None, blocks: int = 20, quantities=None, progress=None):
+             errors: str = "jackknife", scheduler=None, blocks: int = 20, quantities=None, bipartitions=None,
+             progress=None):
     """Estimates with error bars (an xarray Dataset, docs/formats.md "Results").
 
     ``model=None`` uses the model stored in the shadow. ``calibration``: a
     shadow (or path) of |0...0> taken with the same ensemble, for robust
     (noise-aware) estimates. ``quantities`` picks accumulators by name
-    (default: energy, correlations, purity, mutual_information).
+    (default: energy, correlations, purity, mutual_information, and fidelity
+    with a ``target``). ``bipartitions``: "A|B" labels (e.g. "0-1|2-3;0|2") or
+    (sites_A, sites_B) pairs, for the moments of the partial transpose and the
+    p3-PPT entanglement test (local ensemble).
     """
     from manybody.estimation.driver import estimate as _estimate
 
@@ -217,7 +221,7 @@ def estimate(shadow, model=None, subsystems=(), observables=None, target=None, c
     state, description = target_state(target, model, shadow.n_qubits)
     return _estimate(shadow, model, subsystems_of(subsystems, n_sites), _calibration(calibration, shadow),
                      n_blocks=int(blocks), method=errors, quantities=quantities, progress=progress,
-                     options={"target": state, "target_description": description})
+                     options={"target": state, "target_description": description, "bipartitions": bipartitions})
 
 
 def target_state(target, model, n_qubits: int):
@@ -252,10 +256,7 @@ def target_state(target, model, n_qubits: int):
 
 def stored_model(shadow):
     """The model whose spec is stored in the shadow (None if it has none)."""
-    if not shadow.model_spec:
-        return None
-    source = f"{getattr(shadow, 'origin', '') or 'the shadow'} (stored model spec)"
-    return parse_model(shadow.model_spec, source=source)
+    return shadow.model
 
 
 def estimate_series(shadows, **kwargs):

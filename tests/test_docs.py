@@ -62,3 +62,17 @@ def test_library_errors_name_the_argument_and_the_command_line_its_option(tmp_pa
                          env=env, timeout=120)
     assert out.returncode == 2 and "--subsystems '0-9'" in out.stderr and "Traceback" not in out.stderr
     assert np.isfinite(float(shadow.n_snapshots))
+
+
+def test_shadow_round_trip_through_the_api(tmp_path):
+    # What a notebook writes, it reads back: the same records, the model stored with them.
+    import manybody as mb
+
+    model = mb.parse_model('[lattice]\nkind = "chain"\nsize = [4]\n[model]\nkind = "tfim"\n')
+    shadow = mb.simulate(model, "neel", snapshots=300, seed=2)
+    shadow.to_netcdf(tmp_path / "s.nc")
+    again = mb.open_shadow(tmp_path / "s.nc")
+    assert again.n_snapshots == shadow.n_snapshots == 300
+    assert again.model.n_sites == 4 and again.model.hamiltonian.n_terms == model.hamiltonian.n_terms
+    first, second = mb.estimate(shadow), mb.estimate(again)
+    assert float(first.energy) == float(second.energy)

@@ -143,6 +143,22 @@ class Shadow:
     def with_records(self, record_setting, outcomes, counts, **changes) -> "Shadow":
         return replace(self, record_setting=record_setting, outcomes=outcomes, counts=counts, **changes)
 
+    @property
+    def model(self):
+        """The model whose spec is stored with the shadow (None without one)."""
+        if not self.model_spec:
+            return None
+        from hamiltonians.spec import SpecError, parse_spec
+
+        try:
+            return parse_spec(self.model_spec, source=f"{self.source or 'the shadow'} (stored model spec)").build()
+        except SpecError as exc:
+            raise InputError(str(exc), argument="model") from None
+
+    def to_netcdf(self, path) -> None:
+        """Write the shadow (or, without records, its settings) to a netCDF file, atomically."""
+        write_shadow(self, path)
+
 
 # ----------------------------------------------------------------- writing
 def pack_outcomes(bits: np.ndarray) -> np.ndarray:
