@@ -64,13 +64,12 @@ def example_records(path: str, shots: int = 10, seed: int = 7070) -> None:
     settings = mb.draw_settings(chain, "shallow", 1, 200, 7)
     shadow = mb.simulate(chain, "zero", None, "shallow", 1, shots=shots, times=[0.5], settings=settings,
                          seed=seed)[0]
-    with atomic_path(path, ".csv") as tmp:
-        with open(tmp, "w", newline="") as fh:
-            out = csv.writer(fh)
-            out.writerow(["setting", "outcome", "count"])
-            for ids, bits, counts in shadow.records():
-                words = ["".join(map(str, row)) for row in bits]
-                out.writerows(zip(ids.tolist(), words, counts.tolist()))
+    with atomic_path(path, ".csv") as tmp, open(tmp, "w", newline="") as fh:
+        out = csv.writer(fh)
+        out.writerow(["setting", "outcome", "count"])
+        for ids, bits, counts in shadow.records():
+            words = ["".join(map(str, row)) for row in bits]
+            out.writerows(zip(ids.tolist(), words, counts.tolist()))
 
 
 def copy_inputs(out_dir: str) -> list[str]:

@@ -80,7 +80,7 @@ def _matrix_panels(fig, values, exact, error, label, signed=True):
 
 def correlation_map(d, ref=None, axis="Z"):
     """Connected two-point function <σ^α_a σ^α_b> - <σ^α_a><σ^α_b> as a site-by-site map."""
-    pick = dict(axis_a=axis, axis_b=axis)
+    pick = {"axis_a": axis, "axis_b": axis}
     c = d.connected_correlation.sel(**pick).values
     exact = None if ref is None or "connected_correlation" not in ref else ref.connected_correlation.sel(**pick).values
     fig = _figure(d, f"connected correlation {correlation_label(axis, False)}$_c$", 5.2 if exact is None else 14)
@@ -90,7 +90,7 @@ def correlation_map(d, ref=None, axis="Z"):
 
 def correlation_on_lattice(d, ref=None, axis="Z", origin=0, bonds=None):
     """Connected correlation with site ``origin`` (star) drawn on the lattice with its bonds."""
-    pick = dict(axis_a=axis, axis_b=axis, site_a=origin)
+    pick = {"axis_a": axis, "axis_b": axis, "site_a": origin}
     c = d.connected_correlation.sel(**pick).values.copy()
     err = d.connected_correlation_err.sel(**pick).values
     exact = None if ref is None or "connected_correlation" not in ref else \
@@ -294,9 +294,8 @@ def save_report(figs: dict, results: xr.Dataset, out_dir, reference: xr.Dataset 
             fig.savefig(tmp, dpi=int(dpi), format=fmt)
         written.append(path)
     path = os.path.join(out_dir, "summary.txt")
-    with atomic_path(path) as tmp:
-        with open(tmp, "w", encoding="utf-8") as fh:
-            fh.write(text + "\n")
+    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8") as fh:
+        fh.write(text + "\n")
     written.append(path)
     return written
 

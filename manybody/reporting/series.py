@@ -64,7 +64,7 @@ def correlation_series(ds, curve=None, axis="Z", bonds=None):
     fig = _figure(ds, f"nearest-neighbour correlation {label} against time"
                   + (", exact dashed" if curve is not None else ""), 8.5, 4.2)
     ax = fig.subplots()
-    pick = dict(axis_a=axis, axis_b=axis)
+    pick = {"axis_a": axis, "axis_b": axis}
     for k, (a, b) in enumerate(pairs):
         sel = dict(site_a=int(a), site_b=int(b), **pick)
         ax.errorbar(t, ds.correlation.sel(**sel).values, yerr=ds.correlation_err.sel(**sel).values, fmt="o",

@@ -58,15 +58,15 @@ def _frame_rows(d, r, where, rows, zs, per_site):
     if "magnetization" in d and per_site:
         for ax in d.axis.values:
             for i in d.site.values:
-                sel = dict(axis=ax, site=i)
+                sel = {"axis": ax, "site": i}
                 _scalar(d.sel(**sel), None if r is None else r.sel(**sel), "magnetization",
                         f"<σ{ax.lower()}_{i}>", rows, zs, where)
 
 
 def _header(results, reference) -> list[str]:
     a = results.attrs
-    lines = [f"results: {a.get('source', '?')}; {fr.describe(results)}; errors: {a.get('error_method', '?')}"
-             f" ({a.get('error_blocks', '?')} blocks), one standard error"]
+    lines = [(f"results: {a.get('source', '?')}; {fr.describe(results)}; errors: {a.get('error_method', '?')}"
+              f" ({a.get('error_blocks', '?')} blocks), one standard error")]
     if reference is not None:
         b = reference.attrs
         what = ", ".join(f"{k} {b[k]}" for k in ("state", "method", "initial_method") if k in b)
@@ -99,6 +99,6 @@ def summary_table(results: xr.Dataset, reference: xr.Dataset | None = None, per_
     if ref is not None and zs:
         worst = max(zs)
         beyond = sum(z > 3 for z, _ in zs)
-        rows += ["", f"largest |z|: {worst[0]:.2f} ({worst[1]}) over {len(zs)} comparisons; |z| > 3: {beyond} "
-                     f"(about {GAUSS_BEYOND_3 * len(zs):.2g} expected for Gaussian errors)"]
+        rows += ["", (f"largest |z|: {worst[0]:.2f} ({worst[1]}) over {len(zs)} comparisons; |z| > 3: {beyond} "
+                      f"(about {GAUSS_BEYOND_3 * len(zs):.2g} expected for Gaussian errors)")]
     return "\n".join(rows)

@@ -29,6 +29,6 @@ def test_readme_ingest_step_gives_the_quench_state_at_half_time(tmp_path):
     ds = mb.estimate(shadow, quantities=("energy", "correlations"))
     assert within(float(ds.energy), float(ds.energy_err), -11.0)[0]
     exact = mb.reference(model, "zero", [0.5])
-    pair = dict(axis_a="Z", axis_b="Z", site_a=5, site_b=6)
+    pair = {"axis_a": "Z", "axis_b": "Z", "site_a": 5, "site_b": 6}
     assert within(float(ds.correlation.sel(**pair)), float(ds.correlation_err.sel(**pair)),
                   float(exact.correlation.sel(**pair)))[0]

@@ -179,7 +179,7 @@ def test_importing_does_not_touch_pyplot_state():
 
     code = ("import sys, manybody, manybody.reporting.figures, manybody.demo; "
             "print('matplotlib.pyplot' in sys.modules)")
-    assert subprocess.run([sys.executable, "-c", code], capture_output=True, text=True).stdout.strip() == "False"
+    assert subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.strip() == "False"
 
 
 def test_demo_specs_in_package_match_demo_runs():
