@@ -8,6 +8,11 @@ ensemble with independent readout errors this is one factor per qubit; for
 shallow circuits one value per support pattern. The noise is assumed the
 same in the calibration and in the experiment, and symmetric enough to be
 twirled into a Pauli-diagonal channel (e.g. equal flip probabilities).
+
+The calibration is a finite sample too: ``log_lambda_covariance`` gives the
+delete-one-block jackknife covariance of ln lambda_q (blocks of whole
+calibration settings), which the accumulators propagate into their error
+bars by the delta method (docs/design.md section 5).
 """
 
 from __future__ import annotations
@@ -49,6 +54,28 @@ class Calibration:
                                  f"qubits {list(qubits)}; it is too noisy, too small or not of |0...0>")
             self._cache[key] = value
         return self._cache[key]
+
+    def log_lambda_covariance(self, n_blocks: int = 20) -> np.ndarray:
+        """Local ensemble: (n, n) jackknife covariance of ln lambda_q over blocks of calibration settings."""
+        if getattr(self, "_log_cov", None) is not None:
+            return self._log_cov
+        n = self.ensemble.n_qubits
+        values = np.empty((len(self.positions), n))
+        for q in range(n):
+            codes = np.zeros(n, dtype=np.uint8)
+            codes[q] = 2
+            values[:, q] = snapshot_values(codes, self.ensemble, self.settings, self.positions, self.bits)
+        used, setting = np.unique(self.positions, return_inverse=True)
+        b = int(min(n_blocks, len(used)))
+        block = setting * b // len(used)  # contiguous runs of whole settings
+        sums = np.zeros((b, n))
+        np.add.at(sums, block, values)
+        counts = np.bincount(block, minlength=b).astype(float)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            loo = np.log((sums.sum(0) - sums) / (counts.sum() - counts)[:, None])  # (B, n)
+        d = loo - loo.mean(axis=0)
+        self._log_cov = (b - 1) / b * d.T @ d
+        return self._log_cov
 
     def eigenvalue(self, support) -> float:
         qubits = np.flatnonzero(np.asarray(support))

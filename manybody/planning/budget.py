@@ -15,7 +15,25 @@ Pauli gets 1/lambda_P - <P>^2; the energy gets, for the local ensemble, the
 exact sum over pairs of terms sum c_P c_Q 3^|P n Q| <PQ> - <H>^2 (terms that
 agree where they overlap); for circuit ensembles the same sum with the joint
 visibility Pr(P and Q both Z-type) averaged over 20000 random settings.
-The number of snapshots for error eps is N = variance / eps^2.
+
+Shots of one setting share U, so they are not independent. For a Pauli,
+given U the estimate is <P>/lambda_P when U P U^dag is Z-type (probability
+lambda_P for these ensembles) and 0 otherwise, with outcome variance
+(1 - <P>^2)/lambda_P^2 when visible. The mean of K shots of one setting has
+
+    Var = Var_U(E[o|U]) + E_U[Var(o|U)]/K = <P>^2 (1/lambda - 1) + (1 - <P>^2)/(lambda K),
+
+which is 1/lambda - <P>^2 at K = 1; for sums of Paulis the between-setting
+part is sum c_P c_Q <P><Q> J(P, Q)/(lambda_P lambda_Q) - <H>^2 (J: both
+visible in one setting; 3^|P n Q| on the local ensemble). M settings reach
+error eps when M = Var/eps^2. The worst cases take <P>^2 = 1 or 0, whichever
+is larger; for sums, the Cauchy-Schwarz bound for both parts.
+
+A cost model (a time per setting change and per shot) turns settings x shots
+into hours; without a fixed number of shots the planner picks the cheapest
+from SHOT_CHOICES at every depth, and recommends the cheapest depth among
+those that ``estimate`` accepts (circuit-ensemble purities are capped at
+PAULI_VECTOR_MAX_QUBITS of the purity accumulator).
 """
 
 from __future__ import annotations
@@ -30,6 +48,12 @@ from manybody.measure.prepare import coupling_of
 
 #: random settings over which the joint visibility of two terms is averaged
 COVARIANCE_SETTINGS = 20000
+#: default costs in seconds (common practice, no source): a new setting (compile, load, calibrate
+#: the pulses) and one shot (state preparation, circuit, readout, reset)
+SETTING_TIME = 0.1
+SHOT_TIME = 1e-3
+#: shots per setting the planner chooses from when none is given
+SHOT_CHOICES = (1, 2, 5, 10, 20, 50, 100, 200, 500, 1000, 2000, 5000)
 
 
 def _ensemble(model, depth: int):
@@ -50,24 +74,33 @@ def energy_variance_bound(op: PauliExpansion, ens) -> float:
 
 def energy_variance_with_expectations(op: PauliExpansion, ens, expectation) -> float:
     """Per-snapshot variance of sum c_P o_P given <P> for the needed Paulis (``expectation(op) -> array``)."""
+    return energy_variances(op, ens, expectation)[0]
+
+
+def energy_variances(op: PauliExpansion, ens, expectation) -> tuple[float, float]:
+    """(per-snapshot variance, between-setting variance Var_U E[sum c_P o_P | U]) given the <P>.
+
+    Local ensemble: E[o_P o_Q] = 3^|P n Q| <PQ> and E_U[E[o_P|U] E[o_Q|U]] = 3^|P n Q| <P><Q> when P
+    and Q carry the same letter on every shared qubit, else 0 (each shared site must be measured in its
+    letter, 1/3, and gives 3^2; Huang, Kueng, Preskill, Nat. Phys. 16, 1050 (2020), local shadow norm).
+    Circuit ensembles: the same with 3^|P n Q| replaced by J(P, Q)/(lambda_P lambda_Q) and <PQ> by s <R>
+    (PQ = s R), J the probability that both turn Z-type in one setting, averaged over random settings.
+    """
     codes = _codes(op)
     coeffs = op.coeffs.real
-    mean = float(coeffs @ expectation(op))
+    values = expectation(op)
+    mean = float(coeffs @ values)
     if ens.kind == "local" or ens.depth == 0:
-        # E[o_P o_Q] = 3^|supp P n supp Q| <PQ> when P and Q agree where they overlap, else 0:
-        # each shared site must be measured in its letter (1/3) and gives 3^2
-        # (Huang, Kueng, Preskill, Nat. Phys. 16, 1050 (2020), local shadow norm)
         x, z = op.x_bits, op.z_bits
         sup = x | z
         both = sup[:, None, :] & sup[None, :, :]
         agree = np.all(~both | ((x[:, None] == x[None]) & (z[:, None] == z[None])), axis=2)
         i, j = np.nonzero(agree)
-        shared = np.count_nonzero(sup[i] & sup[j], axis=1)
+        weight = 3.0 ** np.count_nonzero(sup[i] & sup[j], axis=1)
         products = PauliExpansion(op.n_qubits, op.x[i] ^ op.x[j], op.z[i] ^ op.z[j], np.ones(len(i)))
-        total = float(np.sum(coeffs[i] * coeffs[j] * 3.0**shared * expectation(products)))
-        return max(total - mean**2, 0.0)
-    # circuit ensembles: E[o_P o_Q] = s <R> J(P, Q) / (lambda_P lambda_Q) for commuting P, Q with
-    # PQ = s R, J = Pr_U(U P U^dag and U Q U^dag both Z-type), estimated over random settings
+        snapshot = float(np.sum(coeffs[i] * coeffs[j] * weight * expectation(products)))
+        between = float(np.sum(coeffs[i] * coeffs[j] * weight * values[i] * values[j]))
+        return max(snapshot - mean**2, 0.0), max(between - mean**2, 0.0)
     from hamiltonians.pauli import product_phase
     from manybody.measure.propagation import setting_factors
 
@@ -79,8 +112,23 @@ def energy_variance_with_expectations(op: PauliExpansion, ens, expectation) -> f
     x3, z3, k = product_phase(op.x[i], op.z[i], op.x[j], op.z[j])
     sign = np.where(k % 4 == 0, 1.0, -1.0)  # visible pairs commute: PQ = +-R
     expect_r = expectation(PauliExpansion(op.n_qubits, x3, z3, np.ones(len(i))))
-    total = float(np.sum(coeffs[i] * coeffs[j] * sign * expect_r * joint[i, j] / (lam[i] * lam[j])))
-    return max(total - mean**2, 0.0)
+    scale = coeffs[i] * coeffs[j] * joint[i, j] / (lam[i] * lam[j])
+    snapshot = float(np.sum(scale * sign * expect_r))
+    between = float(np.sum(scale * values[i] * values[j]))
+    return max(snapshot - mean**2, 0.0), max(between - mean**2, 0.0)
+
+
+def setting_variance(snapshot: float, between: float, shots: int) -> float:
+    """Variance of the mean of K shots of one setting: between + (snapshot - between)/K."""
+    return between + (snapshot - between) / shots
+
+
+def pauli_setting_variance(lam: float, shots: int, p=None) -> np.ndarray:
+    """<P>^2 (1/lambda - 1) + (1 - <P>^2)/(lambda K); without <P> the larger of <P>^2 = 1 and 0."""
+    if p is None:
+        return np.maximum(1 / lam - 1, 1 / (lam * shots))
+    p2 = np.asarray(p, float) ** 2
+    return p2 * (1 / lam - 1) + (1 - p2) / (lam * shots)
 
 
 def pilot_expectations(shadow):
@@ -102,92 +150,180 @@ def pilot_expectations(shadow):
     return expectation
 
 
-def purity_snapshots(qubits, ens, eps: float) -> float:
-    """N with 4 V1/N + 2 V2/N^2 = eps^2 (worst-case V1, V2 of the purity U-statistic)."""
-    k = len(qubits)
-    codes = paulis_on(qubits, ens.n_qubits)[1:]
-    inv = np.array([1 / ens.eigenvalue(c != 0) for c in codes])
-    v1 = (1 + inv.sum()) / 4**k
-    v2 = (1 + (inv**2).sum()) / 4**k
+def purity_snapshots(qubits, ens, eps: float, expectation=None) -> float:
+    """N with 4 V1/N + 2 V2/N^2 = eps^2 (V1, V2 of the purity U-statistic; V1 from a pilot when given)."""
+    v1, v2 = _purity_moments(qubits, ens, expectation)
     return float((4 * v1 + np.sqrt(16 * v1**2 + 8 * eps**2 * v2)) / (2 * eps**2))
 
 
+#: a pilot enters the purity variance only up to this many qubits (4^k expectation values)
+PILOT_PURITY_MAX_QUBITS = 5
+
+
+def _purity_moments(qubits, ens, expectation):
+    """V1 = 4^-k sum_P w_P / lambda_P - (pilot) P^2 and V2 = 4^-k sum_P 1/lambda_P^2 over the Paulis on A.
+
+    Worst case w_P = 1; with a pilot w_P = <P>^2 (diagonal P = Q terms only, an estimate of the scale).
+    """
+    k = len(qubits)
+    inv_sum, inv2_sum = _inverse_eigenvalue_sums(qubits, ens)
+    v2 = inv2_sum / 4**k
+    if expectation is None or k > PILOT_PURITY_MAX_QUBITS:
+        return inv_sum / 4**k, v2
+    codes = paulis_on(qubits, ens.n_qubits)
+    inv = np.array([1.0] + [1 / ens.eigenvalue(c != 0) for c in codes[1:]])
+    x = (codes == 1) | (codes == 3)  # codes: 0 I, 1 X, 2 Z, 3 Y
+    z = (codes == 2) | (codes == 3)
+    p2 = np.asarray(expectation(PauliExpansion.from_bits(x, z, np.ones(len(codes)))), float) ** 2
+    p2[0] = 1.0
+    purity = p2.sum() / 2**k
+    return float(max(np.sum(p2 * inv) / 4**k - purity**2, 1e-12)), v2
+
+
+def _inverse_eigenvalue_sums(qubits, ens) -> tuple[float, float]:
+    """sum_P 1/lambda_P and sum_P 1/lambda_P^2 over the 4^k Paulis on A, by supports (3^|S| Paulis each).
+
+    Local ensemble: lambda_S = 3^-|S|, so the sums are 10^k and 28^k.
+    """
+    k = len(qubits)
+    if ens.kind == "local" or ens.depth == 0:
+        return 10.0**k, 28.0**k
+    masks = (np.arange(2**k)[:, None] >> np.arange(k)) & 1
+    inv1 = inv2 = 0.0
+    for mask in masks:
+        support = np.zeros(ens.n_qubits, dtype=bool)
+        support[np.asarray(qubits)[mask == 1]] = True
+        weight, inv = 3.0 ** mask.sum(), 1.0 / ens.eigenvalue(support) if mask.any() else 1.0
+        inv1, inv2 = inv1 + weight * inv, inv2 + weight * inv**2
+    return inv1, inv2
+
+
 def plan(model, eps: float, depths=(0, 1, 2, 3, 4), distance: int = 1, subsystems=(), expectation=None,
-         shots: int = 1) -> xr.Dataset:
-    """Snapshots needed at each depth for energy, energy per site, correlations up to ``distance``, purities.
+         shots: int | None = None, setting_time: float = SETTING_TIME, shot_time: float = SHOT_TIME) -> xr.Dataset:
+    """Settings x shots needed at each depth for energy, energy per site, correlations up to ``distance``, purities.
 
     ``expectation`` (optional, from a pilot shadow) maps a PauliExpansion to the
-    estimated <P> of its strings.
+    estimated <P> of its strings; every column then uses it. ``shots`` fixes the
+    shots per setting; None picks the cheapest of SHOT_CHOICES under the cost
+    model (seconds per setting change and per shot). Per target the table gives
+    snapshots = settings x shots; ``settings`` is the largest requirement.
     """
-    lat, ham = model.lattice, model.hamiltonian.combined(atol=1e-12)
-    ham = PauliExpansion(ham.n_qubits, ham.x, ham.z, ham.coeffs.real)
-    n = model.n_qubits
-    non_identity = ham.weights > 0
-    ham_terms = PauliExpansion(n, ham.x[non_identity], ham.z[non_identity], ham.coeffs[non_identity])
-    # correlation Paulis: every axis pair on qubit pairs within the distance (graph distance on the lattice)
-    import networkx as nx
-
-    graph = nx.Graph(lat.bonds.tolist())
-    graph.add_nodes_from(range(lat.n_sites))
-    pairs = [(a, b) for a, dist in nx.all_pairs_shortest_path_length(graph, cutoff=distance)
-             for b, d in dist.items() if 0 < d <= distance and a < b] if n == lat.n_sites else []
-    rows = {"energy": [], "energy_density": [], "correlation": [], "purity": []}
+    pairs = _pairs(model, distance)
+    choices = (int(shots),) if shots else SHOT_CHOICES
+    columns = ("energy", "energy_density", "correlation", "purity")
+    rows = {name: [] for name in columns + ("settings", "shots", "snapshots", "time")}
+    allowed = []
     for d in depths:
         ens = _ensemble(model, d)
-        if expectation is None:
-            var_e = energy_variance_bound(ham_terms, ens)
-        else:
-            var_e = energy_variance_with_expectations(ham_terms, ens, expectation)
-        rows["energy"].append(var_e / eps**2)
-        # energy per site: the worst site, terms split over their anchors
-        per_site = []
-        for site in range(lat.n_sites):
-            qubits = np.flatnonzero(model.qubit_site == site)
-            sel = ham_terms.support[:, qubits].any(axis=1)
-            if sel.any():
-                part = PauliExpansion(n, ham_terms.x[sel], ham_terms.z[sel],
-                                      ham_terms.coeffs[sel] / ham_terms.weights[sel])
-                per_site.append(energy_variance_bound(part, ens))
-        rows["energy_density"].append(max(per_site, default=0.0) / eps**2)
-        worst = 0.0
-        for a, b in pairs:
-            codes = np.zeros(n, np.uint8)
-            codes[[a, b]] = 1
-            lam = ens.eigenvalue(codes != 0)
-            var = 1 / lam
-            if expectation is not None:
-                strings = []
-                for la in "XYZ":
-                    for lb in "XYZ":
-                        s = ["I"] * n
-                        s[a], s[b] = la, lb
-                        strings.append("".join(s))
-                var = float(np.max(1 / lam - expectation(PauliExpansion.from_strings(strings)) ** 2))
-            worst = max(worst, var)
-        rows["correlation"].append(worst / eps**2)
-        rows["purity"].append(max((purity_snapshots(np.flatnonzero(np.isin(model.qubit_site, s.sites)), ens, eps)
-                                   for s in subsystems), default=0.0))
-    data = {k: (("depth",), np.ceil(np.array(v))) for k, v in rows.items()}
-    ds = xr.Dataset(data, coords={"depth": list(depths)})
-    needed = np.max(np.stack([ds[k].values for k in rows]), axis=0)
-    ds["snapshots"] = (("depth",), needed)
-    ds["settings"] = (("depth",), np.ceil(needed / shots))
-    best = int(np.argmin(needed))
-    ds.attrs.update(error=eps, distance=distance, shots_per_setting=shots, recommended_depth=int(depths[best]),
-                    method="pilot" if expectation is not None else "worst case")
+        targets = _targets(model, ens, pairs, subsystems, expectation, eps)
+        best = None
+        for k in choices:
+            need = {name: max((f(k) for f in targets[name]), default=0.0) for name in columns}
+            settings = float(np.ceil(max(need.values())))
+            cost = settings * (setting_time + k * shot_time)
+            if best is None or cost < best[0]:
+                best = (cost, k, settings, need)
+        cost, k, settings, need = best
+        for name in columns:
+            rows[name].append(np.ceil(need[name]) * k)
+        rows["settings"].append(settings)
+        rows["shots"].append(k)
+        rows["snapshots"].append(settings * k)
+        rows["time"].append(cost)
+        allowed.append(np.isfinite(cost))
+    ds = xr.Dataset({name: (("depth",), np.array(v, dtype=float)) for name, v in rows.items()},
+                    coords={"depth": list(depths)})
+    times = np.where(allowed, ds["time"].values, np.inf)
+    best = int(np.argmin(times))
+    ds.attrs.update(error=eps, distance=distance, shots_per_setting=int(shots) if shots else 0,
+                    recommended_depth=int(depths[best]) if np.isfinite(times[best]) else -1,
+                    recommended_settings=float(ds["settings"].values[best]),
+                    recommended_shots=int(ds["shots"].values[best]), setting_time=setting_time,
+                    shot_time=shot_time, method="pilot" if expectation is not None else "worst case")
     return ds
+
+
+def _pairs(model, distance):
+    """Qubit pairs within the graph distance on the lattice (spin models only)."""
+    import networkx as nx
+
+    lat = model.lattice
+    if model.n_qubits != lat.n_sites:
+        return []
+    graph = nx.Graph(lat.bonds.tolist())
+    graph.add_nodes_from(range(lat.n_sites))
+    return [(a, b) for a, dist in nx.all_pairs_shortest_path_length(graph, cutoff=distance)
+            for b, d in dist.items() if 0 < d <= distance and a < b]
+
+
+def _targets(model, ens, pairs, subsystems, expectation, eps):
+    """Per column, callables K -> settings needed with K shots per setting (inf: ``estimate`` refuses it)."""
+    from manybody.estimation.accumulators.purity import PAULI_VECTOR_MAX_QUBITS
+
+    ham = model.hamiltonian.combined(atol=1e-12)
+    n = model.n_qubits
+    keep = ham.weights > 0
+    terms = PauliExpansion(n, ham.x[keep], ham.z[keep], ham.coeffs[keep].real)
+
+    def variances(op):
+        if expectation is None:
+            bound = energy_variance_bound(op, ens)
+            return bound, bound
+        return energy_variances(op, ens, expectation)
+
+    def per_setting(snapshot, between):
+        return lambda k: setting_variance(snapshot, between, k) / eps**2
+
+    out = {"energy": [per_setting(*variances(terms))], "energy_density": [], "correlation": [], "purity": []}
+    # energy per site as in the results: each term split equally among the sites it acts on
+    for site in range(model.lattice.n_sites):
+        qubits = np.flatnonzero(model.qubit_site == site)
+        sel = terms.support[:, qubits].any(axis=1)
+        if sel.any():
+            part = PauliExpansion(n, terms.x[sel], terms.z[sel], terms.coeffs[sel] / terms.weights[sel])
+            out["energy_density"].append(per_setting(*variances(part)))
+    for a, b in pairs:
+        codes = np.zeros(n, np.uint8)
+        codes[[a, b]] = 1
+        lam = ens.eigenvalue(codes != 0)
+        p = None
+        if expectation is not None:
+            strings = []
+            for la in "XYZ":
+                for lb in "XYZ":
+                    letters = ["I"] * n
+                    letters[a], letters[b] = la, lb
+                    strings.append("".join(letters))
+            p = expectation(PauliExpansion.from_strings(strings))
+        out["correlation"].append(lambda k, lam=lam, p=p: float(np.max(pauli_setting_variance(lam, k, p))) / eps**2)
+    for sub in subsystems:
+        qubits = np.flatnonzero(np.isin(model.qubit_site, sub.sites))
+        if ens.depth > 0 and len(qubits) > PAULI_VECTOR_MAX_QUBITS:
+            out["purity"].append(lambda k: np.inf)
+            continue
+        single = purity_snapshots(qubits, ens, eps, expectation)
+        v1 = _purity_moments(qubits, ens, expectation)[0]
+        # K shots: at most K-fold fewer settings, never fewer than the first-order term 4 V1 / eps^2 asks
+        out["purity"].append(lambda k, single=single, v1=v1: max(single / k, min(single, 4 * v1 / eps**2)))
+    return out
 
 
 def format_plan(ds: xr.Dataset) -> str:
     cols = [("depth", "depth"), ("energy", "energy"), ("energy_density", "energy/site"),
             ("correlation", f"corr (r<={ds.attrs['distance']})"), ("purity", "purity"),
-            ("snapshots", "needed"), ("settings", "settings")]
+            ("snapshots", "needed"), ("settings", "settings"), ("shots", "shots"), ("time", "time [h]")]
     lines = [f"snapshots for a one-sigma error of {ds.attrs['error']:g} ({ds.attrs['method']} variances)",
              "  ".join(f"{title:>14}" for _, title in cols)]
     for i, d in enumerate(ds.depth.values):
-        cells = [f"{d:>14d}"] + [f"{int(ds[name].values[i]):>14,d}" for name, _ in cols[1:]]
+        cells = [f"{d:>14d}"]
+        for name, _ in cols[1:]:
+            v = float(ds[name].values[i])
+            cells.append(f"{'refused':>14}" if not np.isfinite(v) else
+                         f"{v / 3600:>14.3g}" if name == "time" else f"{int(v):>14,d}")
         mark = "  <- recommended" if d == ds.attrs["recommended_depth"] else ""
         lines.append("  ".join(cells) + mark)
-    lines.append(f"{ds.attrs['shots_per_setting']} shot(s) per setting; "
-                 "purity columns are 0 when no subsystems are given")
+    shots = ds.attrs["shots_per_setting"]
+    lines.append((f"{shots} shot(s) per setting" if shots else "shots per setting: the cheapest choice per depth")
+                 + f"; costs {ds.attrs['setting_time']:g} s per setting, {ds.attrs['shot_time']:g} s per shot; "
+                 "purity columns are 0 when no subsystems are given; 'refused': estimate does not take it")
     return "\n".join(lines)

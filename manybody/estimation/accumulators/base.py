@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from manybody.estimation.errorbars import analytic, jackknife, median_of_means
+from manybody.estimation.errorbars import analytic, interval_halfwidth, jackknife_error, median_of_means, replicates
 from manybody.estimation.sums import BlockSums, PerSetting
 
 
@@ -49,13 +49,41 @@ class Accumulator:
     def variables(self, full: dict, err: dict, data: dict, coords: dict) -> None:
         raise NotImplementedError
 
+    def calibration_gradients(self, full: dict, counts: dict) -> dict:
+        """d estimate / d ln lambda_q (..., n) of the quantities that depend on calibrated eigenvalues."""
+        return {}
+
+    def add_calibration_noise(self, full: dict, err: dict, counts: dict) -> None:
+        """Robust shadows, local ensemble: err^2 += g^T Cov(ln lambda) g (delta method), intervals widened alike.
+
+        Cov(ln lambda) is the jackknife covariance of the calibration's eigenvalues (docs/design.md section 5).
+        """
+        setup = self.setup
+        if not (setup.calibrated and setup.local):
+            return
+        cov = setup.lam.calibrated.log_lambda_covariance()
+        for name, grad in self.calibration_gradients(full, counts).items():
+            if name not in err:
+                continue
+            extra = np.einsum("...q,qr,...r->...", grad, cov, grad)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                widened = np.sqrt(np.asarray(err[name]) ** 2 + np.maximum(extra, 0.0))
+                if interval_key(name) in err:
+                    err[interval_key(name)] = err[interval_key(name)] * np.where(err[name] > 0, widened / err[name], 1)
+            err[name] = widened
+
     def errors(self, counts: dict, method: str) -> tuple[dict, dict]:
         """Estimates and one-sigma errors: jackknife, then other methods for the plain means."""
         blocks = {**counts, **self.sums.data}
-        full, err = jackknife(self.estimates, blocks)
+        full, loo = replicates(self.estimates, blocks)
+        err = {name: jackknife_error(values) for name, values in loo.items()}
+        add_intervals(err, loo)
+        self.add_calibration_noise(full, err, counts)
         for name, key in self.plain_means.items():
             if name not in full:
                 continue
+            if method != "jackknife":
+                err.pop(interval_key(name), None)  # other methods: no Student-t interval
             if method == "median-of-means":
                 full[name], err[name] = median_of_means(blocks[key], counts["n"])
             elif method == "analytic" and name in self.analytic_means:
@@ -68,6 +96,22 @@ def put(data: dict, name: str, dims, value, err: dict) -> None:
     """Variable ``name`` and its one-sigma error ``name_err`` (NaN where no error is known)."""
     data[name] = (dims, np.asarray(value, dtype=float))
     data[name + "_err"] = (dims, np.asarray(err.get(name, np.full(np.shape(value), np.nan)), dtype=float))
+    if interval_key(name) in err:  # x_lo, x_hi: NaN wherever the estimate is NaN
+        half = np.asarray(err[interval_key(name)], dtype=float)
+        data[name + "_lo"] = (dims, np.asarray(value, dtype=float) - half)
+        data[name + "_hi"] = (dims, np.asarray(value, dtype=float) + half)
+
+
+def interval_key(name: str) -> str:
+    """Where ``err`` carries the half-width of the interval of ``name`` (docs/design.md section 5)."""
+    return name + ":halfwidth"
+
+
+def add_intervals(err: dict, loo: dict) -> None:
+    """Student-t half-widths from the jackknife replicates ``loo`` for every quantity in ``err``."""
+    for name, values in loo.items():
+        if name in err and ":" not in name:
+            err[interval_key(name)] = interval_halfwidth(values, err[name])
 
 
 def pair_count(s: dict):

@@ -95,6 +95,17 @@ class Correlations(Accumulator):
                 out["structure_factor"] = structure_factor(corr, self.reciprocal[1])
         return out
 
+    def calibration_gradients(self, full, counts):
+        """Each one-site factor carries 1/lambda_q: d x / d ln lambda_q = -x per qubit of its support."""
+        n = self.setup.n_qubits
+        eye = np.eye(n)
+        out = {"magnetization": -full["magnetization"][..., None] * eye[None]}
+        if "correlation" in full:
+            support = eye[:, None, :] + eye[None, :, :]  # (a, b, q)
+            for name in ("correlation", "connected_correlation"):
+                out[name] = -np.nan_to_num(full[name])[..., None] * support
+        return out
+
     def variables(self, full, err, data, coords):
         if not self.setup.spin_like:
             return

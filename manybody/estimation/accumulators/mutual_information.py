@@ -12,6 +12,13 @@ from __future__ import annotations
 import numpy as np
 
 from manybody.estimation.accumulators.base import Accumulator, pair_count
+from manybody.estimation.errorbars import (
+    bias_corrected,
+    combination_weight,
+    interval_halfwidth,
+    jackknife_error,
+    replicates,
+)
 from manybody.estimation.kernels import words
 from manybody.estimation.pair_sums import mi_purities, mi_purities_paulis, mi_within
 
@@ -35,7 +42,31 @@ class MutualInformation(Accumulator):
         purity = self.pair_purities(s)
         if purity is None:
             return {}
-        return {"mutual_information": mutual_information(purity)}
+        out = {"mutual_information": mutual_information(purity)}
+        within = self.within_purities(s)
+        if within is not None:
+            out["mi_purity"], out["mi_purity_within"] = purity, within
+        return out
+
+    def within_purities(self, s):
+        """Purities from pairs of shots of one setting (None unless several shots per setting)."""
+        return None
+
+    def errors(self, counts, method):
+        """I2 from the variance-minimising mix of the two purity maps where both exist; bias-corrected I2."""
+        full, loo = replicates(self.estimates, {**counts, **self.sums.data})
+        if "mutual_information" not in full:
+            return {}, {}
+        mi, mi_reps = full["mutual_information"], loo["mutual_information"]
+        if "mi_purity_within" in full:
+            w = combination_weight(loo["mi_purity"], loo["mi_purity_within"])  # weight of the cross-setting map
+            purity = w * full["mi_purity"] + (1 - w) * full["mi_purity_within"]
+            mi = mutual_information(purity)
+            mi_reps = np.array([mutual_information(w * a + (1 - w) * b)
+                                for a, b in zip(loo["mi_purity"], loo["mi_purity_within"])])
+        err = jackknife_error(mi_reps)
+        return ({"mutual_information": bias_corrected(mi, mi_reps)},
+                {"mutual_information": err, "mutual_information:halfwidth": interval_halfwidth(mi_reps, err)})
 
     def variables(self, full, err, data, coords):
         if "mutual_information" not in full:
@@ -48,6 +79,9 @@ class MutualInformation(Accumulator):
         mi_err[np.diag_indices(n)] = np.nan
         data["mutual_information"] = (("site_a", "site_b"), mi)
         data["mutual_information_err"] = (("site_a", "site_b"), mi_err)
+        half = np.asarray(err.get("mutual_information:halfwidth", 2 * mi_err), float)
+        data["mutual_information_lo"] = (("site_a", "site_b"), mi - half)
+        data["mutual_information_hi"] = (("site_a", "site_b"), mi + half)
 
 
 def mutual_information(purity: np.ndarray) -> np.ndarray:
@@ -79,8 +113,20 @@ class LocalMutualInformation(MutualInformation):
         if "mi_joint" in self.per_setting:
             setup = self.setup
             n = setup.n_qubits
-            self.sums.add_blocks("mi_within", mi_within(self.per_setting["mi_joint"], setup.setting_block,
-                                                        setup.n_blocks, n, setup.lam.inv_local(n)))
+            joint, inv = self.per_setting["mi_joint"], setup.lam.inv_local(n)
+            self.sums.add_blocks("mi_within", mi_within(joint, setup.setting_block, setup.n_blocks, n, inv))
+            # the within-setting kernel: per-site factors 1/2 +- inv^2/6 = (1 +- (inv/sqrt 3)^2)/2
+            self.sums.add_blocks("mi_brydges", mi_within(joint, setup.setting_block, setup.n_blocks, n,
+                                                         inv / np.sqrt(3)))
+
+    def within_purities(self, s):
+        if "mi_brydges" not in s:
+            return None
+        n = self.setup.n_qubits
+        own = 0.5 + self.setup.lam.inv_local(n) ** 2 / 6  # the s = s' term per site
+        pair_own = np.outer(own, own)
+        pair_own[np.diag_indices(n)] = own
+        return (s["mi_brydges"] - s["n"] * pair_own) / (s["n2"] - s["n"])
 
     def pair_purities(self, s):
         if self.setup.multi and "mi_within" not in s:

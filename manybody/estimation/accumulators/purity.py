@@ -14,7 +14,16 @@ algorithms, chosen per subsystem:
   the largest covering the others.
 
 Pairs of shots of one setting are left out via per-setting sums.
-S2 = -ln P with the delta-method error; NaN with a warning when P <= 0.
+
+With several shots per setting (local ensemble, histogram subsystems) a
+second unbiased estimator uses exactly those pairs: for the shots s != s'
+of one setting, 2^|A| (-2)^(-D(s, s')) with D the Hamming distance on A
+(Elben et al., PRL 120, 050406 (2018); Brydges et al., Science 364, 260
+(2019)); robust shadows replace the per-site factors 2 and -1 by
+1/2 +- 1/(6 lambda_q^2). The reported purity is w P_cross + (1 - w) P_within
+with w minimising the jackknife variance (docs/design.md section 5).
+S2 = -ln P: the jackknife of -ln P itself with its bias correction (delta
+method for pair-count and circuit subsystems); NaN with a warning when P <= 0.
 """
 
 from __future__ import annotations
@@ -24,8 +33,14 @@ import warnings
 import numpy as np
 
 from manybody.errors import InputError
-from manybody.estimation.accumulators.base import Accumulator, pair_count, put
-from manybody.estimation.errorbars import jackknife
+from manybody.estimation.accumulators.base import Accumulator, interval_key, pair_count, put
+from manybody.estimation.errorbars import (
+    bias_corrected,
+    combination_weight,
+    interval_halfwidth,
+    jackknife_error,
+    replicates,
+)
 from manybody.estimation.kernels import histogram_index, histogram_pair_sum, site_factor_matrix, words
 from manybody.estimation.pair_sums import outcome_within, pair_count_blocks, pair_count_jackknife
 from manybody.estimation.stabilizer import (
@@ -55,9 +70,18 @@ class Purity(Accumulator):
         coords["subsystem_size"] = ("subsystem", [len(s.sites) for s in subsystems])
         purity, perr = np.asarray(full["purity"], float), np.asarray(err["purity"], float)
         put(data, "purity", ("subsystem",), purity, err)
+        known = getattr(self, "purity_interval", {})  # else 2 sigma
+        bounds = np.array([known.get(i, (p - 2 * e, p + 2 * e)) for i, (p, e) in enumerate(zip(purity, perr))])
+        data["purity_lo"], data["purity_hi"] = (("subsystem",), bounds[:, 0]), (("subsystem",), bounds[:, 1])
         s2, s2_err = renyi2(purity, perr)
+        if "renyi2" in full:  # the jackknife of -ln P where it is known
+            known = np.isfinite(full["renyi2"]) & np.isfinite(s2)
+            s2, s2_err = np.where(known, full["renyi2"], s2), np.where(known, err["renyi2"], s2_err)
         data["renyi2"] = (("subsystem",), s2)
         data["renyi2_err"] = (("subsystem",), s2_err)
+        half = np.asarray(err.get(interval_key("renyi2"), np.full(len(s2), np.nan)), float)
+        half = np.where(np.isfinite(half), half, 2 * s2_err)  # else 2 sigma
+        data["renyi2_lo"], data["renyi2_hi"] = (("subsystem",), s2 - half), (("subsystem",), s2 + half)
 
 class LocalPurity(Purity):
     def __init__(self, setup):
@@ -94,31 +118,100 @@ class LocalPurity(Purity):
         inv = setup.lam.inv_local(setup.n_qubits)
         for i, qs in enumerate(self.qubits):
             if f"oh{i}" in self.per_setting:
-                self.sums.add_blocks(f"hw{i}", outcome_within(self.per_setting[f"oh{i}"], setup.setting_block,
-                                                              setup.n_blocks, len(qs), inv[qs]))
+                hists = self.per_setting[f"oh{i}"]
+                self.sums.add_blocks(f"hw{i}", outcome_within(hists, setup.setting_block, setup.n_blocks,
+                                                              len(qs), inv[qs]))
+                # per-site factors 1/2 +- inv^2/6 = (1 +- (inv/sqrt 3)^2)/2: the within-setting kernel
+                self.sums.add_blocks(f"bw{i}", outcome_within(hists, setup.setting_block, setup.n_blocks,
+                                                              len(qs), inv[qs] / np.sqrt(3)))
         # pair counts: block-by-block matrices, whose leave-one-out sums are not total - block
         self.pair_counts = {f"pc{i}": pair_count_blocks(parts, self.qubits[i], inv, setup.n_blocks, setup.multi)
                             for i, parts in self.pair_words.items()}
 
-    def estimates(self, s):
+    def estimates(self, s, inv=None):
+        """Cross-setting U-statistics ``purity`` and, with several shots per setting, ``purity_within``."""
         pairs = pair_count(s)
-        inv = self.setup.lam.inv_local(self.setup.n_qubits)
-        purities = []
+        inv = self.setup.lam.inv_local(self.setup.n_qubits) if inv is None else inv
+        cross, within = [], []
         for i, qs in enumerate(self.qubits):
             if f"hist{i}" in s:
                 total = histogram_pair_sum(s[f"hist{i}"], [site_factor_matrix(inv[q]) for q in qs])
-                purities.append((total - s[f"hw{i}"]) / pairs)
-        return {"purity": np.array(purities, dtype=float)} if purities else {}
+                cross.append((total - s[f"hw{i}"]) / pairs)
+            if f"bw{i}" in s:
+                own = np.prod(0.5 + inv[qs] ** 2 / 6)  # the s = s' term of the within-setting kernel
+                within.append((s[f"bw{i}"] - s["n"] * own) / (s["n2"] - s["n"]))
+        out = {"purity": np.array(cross, dtype=float)} if cross else {}
+        if within:
+            out["purity_within"] = np.array(within, dtype=float)
+        return out
 
     def errors(self, counts, method):
-        full, err = jackknife(self.estimates, {**counts, **self.sums.data})
-        if not self.pair_counts:
-            return full, err
-        full_pc, err_pc = pair_count_jackknife(self.pair_counts, counts, self.qubits)
-        rest, rest_err = iter(full.get("purity", [])), iter(err.get("purity", []))
-        merged = [(full_pc[i], err_pc[i]) if i in full_pc else (next(rest), next(rest_err))
-                  for i in range(len(self.qubits))]
-        return {"purity": np.array([m[0] for m in merged])}, {"purity": np.array([m[1] for m in merged])}
+        """Combined purities, the jackknife of S2 = -ln P with its bias correction, and pair-count subsystems."""
+        full, loo = replicates(self.estimates, {**counts, **self.sums.data})
+        k = len(self.qubits)
+        out = {name: np.full(k, np.nan) for name in ("purity", "renyi2")}
+        err = {name: np.full(k, np.nan) for name in ("purity", "renyi2")}
+        hist = [i for i in range(k) if i not in self.pair_words]
+        if hist:
+            p, reps = full["purity"], loo["purity"]
+            self.within_weight = np.ones(len(hist))
+            if "purity_within" in full:
+                self.within_weight = w = 1 - combination_weight(reps, loo["purity_within"])
+                p, reps = (1 - w) * p + w * full["purity_within"], (1 - w) * reps + w * loo["purity_within"]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                s2, s2_reps = -np.log(np.where(p > 0, p, np.nan)), -np.log(np.where(reps > 0, reps, np.nan))
+            out["purity"][hist], err["purity"][hist] = p, jackknife_error(reps)
+            out["renyi2"][hist], err["renyi2"][hist] = bias_corrected(s2, s2_reps), jackknife_error(s2_reps)
+            err[interval_key("renyi2")] = np.full(k, np.nan)
+            err[interval_key("renyi2")][hist] = interval_halfwidth(s2_reps, err["renyi2"][hist])
+            self.add_calibration_noise(out, err, counts)
+            half = err[interval_key("renyi2")][hist]
+            s2 = out["renyi2"][hist]
+            # P is skewed when few settings inform it, ln P much less: the interval of P is exp(-S2 interval)
+            self.purity_interval = {i: (np.exp(-(s2[j] + half[j])), np.exp(-(s2[j] - half[j])))
+                                    for j, i in enumerate(hist)}
+        if self.pair_counts:
+            full_pc, err_pc = pair_count_jackknife(self.pair_counts, counts, self.qubits)
+            for i in full_pc:
+                out["purity"][i], err["purity"][i] = full_pc[i], err_pc[i]
+        return out, err
+
+    def calibration_gradients(self, full, counts):
+        """d P / d ln lambda_q by central differences of the estimator on the same sums (and of S2 = -ln P)."""
+        hist = [i for i in range(len(self.qubits)) if i not in self.pair_words]
+        n = self.setup.n_qubits
+        inv0 = self.setup.lam.inv_local(n)
+        grad = np.zeros((len(self.qubits), n))
+        step = 1e-4
+        for q in np.unique(np.concatenate([self.qubits[i] for i in hist])):
+            shifted = []
+            for sign in (1, -1):
+                inv = inv0.copy()
+                inv[q] *= np.exp(-sign * step)  # ln lambda_q -> ln lambda_q + sign step
+                shifted.append(self._purity_at(inv, counts))
+            grad[hist, q] = (shifted[0] - shifted[1]) / (2 * step)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return {"purity": grad, "renyi2": -grad / np.asarray(full["purity"])[:, None]}
+
+    def _purity_at(self, inv, counts):
+        """The reported (combined) purities of the histogram subsystems with other inverse eigenvalues."""
+        setup = self.setup
+        s = {k: v.sum(axis=0) for k, v in self.sums.data.items()}
+        s["n"], s["n2"] = counts["n"].sum(), counts["n2"].sum()
+        one_block = np.where(setup.setting_block >= 0, 0, -1)
+        for i, qs in enumerate(self.qubits):
+            if f"oh{i}" in self.per_setting:
+                hists = self.per_setting[f"oh{i}"]
+                s[f"hw{i}"] = outcome_within(hists, one_block, 1, len(qs), inv[qs])[0]
+                s[f"bw{i}"] = outcome_within(hists, one_block, 1, len(qs), inv[qs] / np.sqrt(3))[0]
+            elif f"hw{i}" in s:
+                s[f"hw{i}"] = s["n"] * np.prod((1 + inv[qs] ** 2) / 2)
+        est = self.estimates(s, inv)
+        if "purity_within" not in est:
+            return est["purity"]
+        w = self.within_weight
+        return (1 - w) * est["purity"] + w * est["purity_within"]
+
 
 class CircuitPurity(Purity):
     """Circuit ensembles: per-block Pauli-vector sums of covering subsystems, from whole settings."""
