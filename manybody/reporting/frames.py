@@ -21,7 +21,7 @@ MAX_FRAMES = 4
 RESULT_VARIABLES = ("energy", "energy_density", "magnetization", "correlation", "renyi2", "purity", "fidelity",
                     "total_magnetization", "mutual_information", "structure_factor")
 #: attributes that name the physics; when both datasets carry one, they must agree
-IDENTITY_ATTRS = ("model_spec", "model", "spec", "state", "lattice")
+IDENTITY_ATTRS = ("model_spec", "model_hash", "model", "spec", "state", "lattice")
 
 
 def _label_attr(ds) -> dict:

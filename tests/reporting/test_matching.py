@@ -66,6 +66,18 @@ def test_mismatched_reference_is_refused_in_one_sentence(quench, capsys, tmp_pat
     assert not (tmp_path / "r").exists()  # nothing written, not even an empty summary
 
 
+def test_model_or_state_attributes_must_agree_when_both_carry_them(quench):
+    # Estimates do not record the state today; when a dataset does, a reference of another state is refused.
+    _, paths, results = quench
+    import xarray as xr
+
+    exact = xr.load_dataset(paths["exact"])
+    labelled = results.assign_attrs(state="neel")
+    with pytest.raises(mb.InputError, match="its state differs from that of the results"):
+        match_reference(labelled, exact.assign_attrs(state="zero"))
+    assert match_reference(results.assign_attrs(state="zero"), exact.assign_attrs(state="zero")) is not None
+
+
 def test_reference_given_as_results_is_refused(quench, capsys, tmp_path):
     _, paths, _ = quench
     code, out = _run(capsys, paths["exact"], "-o", tmp_path / "r")
