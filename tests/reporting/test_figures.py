@@ -188,3 +188,11 @@ def test_demo_specs_in_package_match_demo_runs():
         with open(os.path.join(here, "demo_runs", name)) as a, open(os.path.join(here, "manybody", "demo_specs",
                                                                                    name)) as b:
             assert a.read() == b.read()
+
+
+def test_shallow_ensemble_figures_name_the_depth():
+    model = mb.parse_model('[lattice]\nkind = "chain"\nsize = [4]\n[model]\nkind = "tfim"\n')
+    shadow = mb.simulate(model, "ground", snapshots=300, ensemble="shallow", depth=1, seed=4)
+    ds = mb.estimate(shadow, quantities=("energy", "correlations"))
+    for fig in report.figures(ds).values():
+        assert "shallow ensemble, depth 1, 300 snapshots" in fig._suptitle.get_text()
