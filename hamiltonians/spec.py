@@ -78,6 +78,7 @@ class ModelSpec:
     units: str = "pauli"
     order: str = "row"
     name: str = ""
+    particles: tuple[int, int] | None = None  # Hubbard: (spin up, spin down) of the ground-state sector
     text: str = field(default="", compare=False)
     source: str = field(default="<spec>", compare=False)
 
@@ -110,6 +111,11 @@ class Model:
     @property
     def n_sites(self) -> int:
         return self.lattice.n_sites
+
+    @property
+    def sector(self) -> tuple[int, int] | None:
+        """(spin up, spin down) particles of the ground state asked for (Hubbard models), or None: all sectors."""
+        return self.spec.particles
 
 
 def _type_name(value) -> str:
@@ -180,7 +186,7 @@ def parse_spec(text: str, source: str = "<spec>") -> ModelSpec:
     if not isinstance(model, dict):
         raise SpecError(f"{source}: model must be a table ([model])")
     mkind = _choice(_need(model, "kind", "[model]", source), MODEL_KINDS, "model.kind", source)
-    allowed = ("kind", "units", "term") + tuple(MODEL_PARAMETERS[mkind])
+    allowed = ("kind", "units", "term") + (("particles",) if mkind == "hubbard" else ()) + tuple(MODEL_PARAMETERS[mkind])
     _check_keys(f"[model] for kind {mkind!r}", model, allowed, source)
     units = _choice(model.get("units", "pauli"), UNITS, "model.units", source)
     params = tuple((k, _number(model[k], f"model.{k}", source)) for k in MODEL_PARAMETERS[mkind] if k in model)
@@ -213,9 +219,18 @@ def parse_spec(text: str, source: str = "<spec>") -> ModelSpec:
         raise SpecError(f"{source}: a {lkind} of size {size} with the {mkind} model needs about "
                         f"{need / 2**30:.1f} GiB for its Pauli sum; at most {MAX_PAULI_SUM_BYTES / 2**30:.0f} GiB "
                         "fit on this machine, so choose a smaller lattice")
+    particles = None
+    if "particles" in model:
+        particles = model["particles"]
+        sites = cells * _CELL.get(lkind, (1, 2, 2))[0]
+        if (not isinstance(particles, list) or len(particles) != 2
+                or any(isinstance(p, bool) or not isinstance(p, int) or not 0 <= p <= sites for p in particles)):
+            raise SpecError(f"{source}: model.particles must be [spin up, spin down], two whole numbers from 0 to "
+                            f"{sites} (the number of sites), got {particles!r}")
+        particles = tuple(particles)
     return ModelSpec(lattice_kind=lkind, size=tuple(size), boundary=tuple(boundary), kind=mkind,
                      params=params, terms=tuple(terms), units=units, order=order, name=name,
-                     text=text, source=source)
+                     particles=particles, text=text, source=source)
 
 
 def read_spec(path: str | os.PathLike) -> ModelSpec:

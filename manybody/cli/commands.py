@@ -34,8 +34,11 @@ def cmd_model(args) -> int:
     if args.exact:
         n = model.n_qubits
         if n <= MAX_EXACT_QUBITS:
-            energy, _ = ground_state(ham)
+            energy, _ = ground_state(ham, model.sector)
             how = f"exact diagonalization, {n} qubits"
+        elif model.sector is not None:
+            raise InputError(f"{args.spec}: ground states in a particle sector need exact diagonalization, at most "
+                             f"{MAX_EXACT_QUBITS} qubits; this model has {n}")
         elif lat.is_one_dimensional:
             energy, _ = ground_state_mps(ham, bond_dims=_ramp(args.bond_dim))
             how = f"DMRG, bond dimension up to {args.bond_dim}"
@@ -44,7 +47,8 @@ def cmd_model(args) -> int:
                              f"diagonalization (at most {MAX_EXACT_QUBITS}) and DMRG here takes only "
                              "chains and ladders")
         if spec.kind == "hubbard":
-            how += ", lowest over all particle numbers"
+            how += (f", {model.sector[0]} up and {model.sector[1]} down" if model.sector
+                    else ", lowest over all particle numbers (set particles = [up, down] in [model])")
         rows.append(("ground energy", f"{energy:.10g} ({how})"))
         rows.append(("per site", f"{energy / lat.n_sites:.10g}"))
     width = max(len(k) for k, _ in rows)
@@ -161,9 +165,11 @@ def cmd_estimate(args) -> int:
             warnings.simplefilter("always", RuntimeWarning)
             try:
                 ds = mb.estimate(shadow, model=args.model, subsystems=args.subsystems, calibration=calibration,
-                                 target=args.target, errors=args.errors, blocks=args.blocks,
+                                 target=args.target, bipartitions=args.bipartitions, errors=args.errors,
+                                 blocks=args.blocks,
                                  quantities=None if not args.no_mutual_information else
-                                 ("energy", "correlations", "purity", "fidelity"),
+                                 ("energy", "correlations", "purity", "fidelity", "observables", "hubbard",
+                                  "pt_moments"),
                                  progress=progress_bar(args, desc=os.path.basename(path), unit="chunk"))
             except InputError as exc:
                 raise InputError(f"{path}: {exc}", argument=exc.argument) from None
@@ -182,6 +188,9 @@ def _print_summary(path, ds):
         parts.append(f"energy {float(ds.energy):.5g} +- {float(ds.energy_err):.2g}")
     if "fidelity" in ds:
         parts.append(f"fidelity {float(ds.fidelity):.4g} +- {float(ds.fidelity_err):.2g}")
+    if "ppt_significance" in ds:
+        for label, sig in zip(ds.bipartition.values, ds.ppt_significance.values):
+            parts.append(f"p3-PPT[{label}] {sig:+.1f} sigma")
     if "renyi2" in ds:
         for label, s2, err in zip(ds.subsystem.values, ds.renyi2.values, ds.renyi2_err.values):
             parts.append(f"S2[{label}] {s2:.4g} +- {err:.2g}")

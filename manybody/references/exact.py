@@ -21,15 +21,41 @@ MAX_EXACT_QUBITS = 20
 
 
 # --------------------------------------------------------------- dense states
-def ground_state(ham: PauliExpansion) -> tuple[float, np.ndarray]:
-    """Lowest eigenvalue and eigenvector of H (scipy eigsh; dense eigh when tiny)."""
+def ground_state(ham: PauliExpansion, sector: tuple[int, int] | None = None) -> tuple[float, np.ndarray]:
+    """Lowest eigenvalue and eigenvector of H (scipy eigsh; dense eigh when small).
+
+    ``sector`` (spin up, spin down): the lowest state with that many particles,
+    for fermions mapped by Jordan-Wigner with qubit 2i = site i spin up and
+    2i+1 = spin down, occupied = |1> (openfermion's convention); H conserves
+    both numbers, so it is diagonalized in the basis states of the sector.
+    """
     mat = ham.to_sparse()
+    index = sector_states(ham.n_qubits, sector)
+    if index is not None:
+        mat = mat[index][:, index]
     if mat.shape[0] <= 64:
         vals, vecs = np.linalg.eigh(mat.toarray())
-        return float(vals[0]), vecs[:, 0]
-    v0 = np.random.default_rng(0).standard_normal(mat.shape[0])
-    vals, vecs = spla.eigsh(mat, k=1, which="SA", v0=v0, tol=1e-12)
-    return float(vals[0]), vecs[:, 0]
+        energy, vec = float(vals[0]), vecs[:, 0]
+    else:
+        v0 = np.random.default_rng(0).standard_normal(mat.shape[0])
+        vals, vecs = spla.eigsh(mat, k=1, which="SA", v0=v0, tol=1e-12)
+        energy, vec = float(vals[0]), vecs[:, 0]
+    if index is None:
+        return energy, vec
+    full = np.zeros(2**ham.n_qubits, dtype=vec.dtype)
+    full[index] = vec
+    return energy, full
+
+
+def sector_states(n_qubits: int, sector) -> np.ndarray | None:
+    """Basis-state indices with (spin up, spin down) occupied orbitals (qubit 0 most significant), or None."""
+    if sector is None:
+        return None
+    rows = np.arange(2**n_qubits, dtype=np.int64)
+    up = sum(1 << (n_qubits - 1 - q) for q in range(0, n_qubits, 2))
+    down = sum(1 << (n_qubits - 1 - q) for q in range(1, n_qubits, 2))
+    keep = (np.bitwise_count(rows & up) == sector[0]) & (np.bitwise_count(rows & down) == sector[1])
+    return np.flatnonzero(keep)
 
 
 def expectation(op: PauliExpansion, psi: np.ndarray) -> float | complex:

@@ -11,13 +11,35 @@ from manybody.references import exact
 DMRG_BOND_LADDER = (16, 32, 64, 128, 256, 512)
 
 
-def initial_state(model, state, kind: str, bond_dim: int, cutoff: float):
-    """(state as a dense vector or quimb MPS, attrs describing how it was obtained)."""
+def initial_state(model, state, kind: str, bond_dim: int = 128, cutoff: float = 1e-10, prefer_exact: bool = False):
+    """(state as a dense vector or quimb MPS, attrs describing how it was obtained).
+
+    The one place where states are made, for references and simulations alike:
+    "ground" is found by exact diagonalization for dense states, and also for
+    matrix product states up to MAX_EXACT_QUBITS qubits when ``prefer_exact``
+    (simulations: the same state as the dense reference) or when the model
+    names a particle sector; by DMRG otherwise;
+    "STATE@SPEC.toml" is that state of another model on the same qubits (the
+    start of a quench).
+    """
     n, ham = model.n_qubits, model.hamiltonian
+    if isinstance(state, str) and "@" in state:
+        return _state_of_other_model(model, state, kind, bond_dim, cutoff, prefer_exact)
     if isinstance(state, str) and state == "ground":
-        if kind == "dense":
-            energy, psi = exact.ground_state(ham)
-            return psi, {"state": "ground", "initial_method": "exact diagonalization", "ground_energy": energy}
+        sector = getattr(model, "sector", None)
+        if kind == "dense" or (n <= exact.MAX_EXACT_QUBITS and (prefer_exact or sector is not None)):
+            energy, psi = exact.ground_state(ham, sector)
+            info = {"state": "ground", "initial_method": "exact diagonalization", "ground_energy": energy}
+            if sector is not None:
+                info["particles"] = list(sector)
+            if kind == "dense":
+                return psi, info
+            import quimb.tensor as qtn
+
+            return qtn.MatrixProductState.from_dense(np.asarray(psi, dtype=complex), dims=[2] * n), info
+        if sector is not None:
+            raise InputError(f"{model.spec.source}: ground states in a particle sector need exact diagonalization, "
+                             f"at most {exact.MAX_EXACT_QUBITS} qubits; this model has {n}", argument="state")
         ladder = [d for d in DMRG_BOND_LADDER if d < bond_dim] + [bond_dim]
         energy, psi = exact.ground_state_mps(ham, bond_dims=ladder, cutoff=cutoff)
         return psi, {"state": "ground", "initial_method": "DMRG", "ground_energy": energy}
@@ -52,6 +74,21 @@ def initial_state(model, state, kind: str, bond_dim: int, cutoff: float):
         return state / state.norm(), {"state": "given MPS", "initial_method": "given"}
     raise InputError(f"state {type(state).__name__}: expected 'ground', a product-state word, "
                      "a numpy vector or a quimb MPS")
+
+
+def _state_of_other_model(model, state, kind, bond_dim, cutoff, prefer_exact=False):
+    from hamiltonians.spec import SpecError, load_model
+
+    name, _, path = state.partition("@")
+    try:
+        start = load_model(path)
+    except SpecError as exc:
+        raise InputError(f"state {state!r}: {exc}", argument="state") from None
+    if start.n_qubits != model.n_qubits:
+        raise InputError(f"state {state!r}: {path} has {start.n_qubits} qubits but the model has {model.n_qubits}",
+                         argument="state")
+    psi, info = initial_state(start, name, kind, bond_dim, cutoff, prefer_exact)
+    return psi, {**info, "state": state}
 
 
 def prepare(model, state, times, kind: str, bond_dim: int, cutoff: float, dt: float = 0.05):

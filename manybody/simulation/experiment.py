@@ -57,63 +57,14 @@ def choose_backend(model, backend: str) -> str:
 
 
 def initial_state(model, state, backend: str, bond_dim: int = 128):
-    """The state before any evolution, as a dense vector or a quimb MPS, and what is known of it.
+    """The state before any evolution and what is known of it (one definition: manybody.references.prepare)."""
+    from manybody.references.prepare import initial_state as make
 
-    ``state``: "ground" (exact diagonalization up to MAX_EXACT_QUBITS qubits,
-    the same as the references, else DMRG), a product state (name or one
-    letter per qubit), "STATE@SPEC.toml" (that state of another model on the
-    same qubits: the start of a quench), or a state object (numpy vector or
-    quimb MPS).
-    """
-    n = model.n_qubits
-    if not isinstance(state, str):
-        return _state_object(state, n, backend)
-    if "@" in state:
-        from hamiltonians.spec import SpecError, load_model
-
-        name, _, path = state.partition("@")
-        try:
-            start = load_model(path)
-        except SpecError as exc:
-            raise InputError(f"state {state!r}: {exc}", argument="state") from None
-        if start.n_qubits != n:
-            raise InputError(f"state {state!r}: {path} has {start.n_qubits} qubits but the model has {n}",
-                             argument="state")
-        return initial_state(start, name, backend, bond_dim)
-    if state == "ground":
-        if n <= exact.MAX_EXACT_QUBITS:
-            energy, psi = exact.ground_state(model.hamiltonian)
-            info = {"ground_energy": energy, "ground_state_method": "exact diagonalization"}
-            return (psi if backend == "dense" else _to_mps(psi, n)), info
-        energy, psi = exact.ground_state_mps(model.hamiltonian, bond_dims=[d for d in (16, 32, 64, 128, 256)
-                                                                          if d < bond_dim] + [bond_dim])
-        return psi, {"ground_energy": energy, "ground_state_method": "DMRG"}
-    letters = product_letters(state, n)
-    if backend == "dense":
-        return exact.product_state(letters), {}
-    import quimb.tensor as qtn
-
-    return qtn.MPS_product_state([exact.SINGLE_QUBIT_STATES[c] for c in letters]), {}
-
-
-def _to_mps(psi, n):
-    import quimb.tensor as qtn
-
-    return qtn.MatrixProductState.from_dense(np.asarray(psi, dtype=complex), dims=[2] * n)
-
-
-def _state_object(psi, n, backend):
-    if isinstance(psi, np.ndarray):
-        if psi.shape != (2**n,):
-            raise InputError(f"state: a vector of {2**n} amplitudes was expected for {n} qubits, "
-                             f"got shape {psi.shape}", argument="state")
-        psi = psi / np.linalg.norm(psi)
-        return (psi if backend == "dense" else _to_mps(psi, n)), {}
-    if getattr(psi, "L", None) != n:
-        raise InputError(f"state: expected a numpy vector or a quimb MPS on {n} sites", argument="state")
-    if backend == "dense":
-        return np.asarray(psi.to_dense()).ravel(), {}
-    return psi, {}
+    psi, attrs = make(model, state, backend, bond_dim, prefer_exact=True)
+    info = {key: attrs[key] for key in ("ground_energy", "particles") if key in attrs}
+    if attrs.get("initial_method") in ("exact diagonalization", "DMRG"):
+        info["ground_state_method"] = attrs["initial_method"]
+    return psi, info
 
 
 def prepare_states(model, state, times, backend: str, bond_dim: int = 128):
