@@ -10,7 +10,9 @@ from manybody.estimation.accumulators.base import Accumulator
 from manybody.estimation.accumulators.correlations import Correlations
 from manybody.estimation.accumulators.energy import Energy
 from manybody.estimation.accumulators.fidelity import Fidelity
+from manybody.estimation.accumulators.hubbard import Hubbard
 from manybody.estimation.accumulators.mutual_information import MutualInformation
+from manybody.estimation.accumulators.observables import Observables
 from manybody.estimation.accumulators.pt_moments import PartialTransposeMoments
 from manybody.estimation.accumulators.purity import Purity
 from manybody.estimation.accumulators.total_magnetization import TotalMagnetization
@@ -22,9 +24,11 @@ ACCUMULATORS = {
     "mutual_information": MutualInformation,
     "total_magnetization": TotalMagnetization,
     "fidelity": Fidelity,
+    "observables": Observables,
+    "hubbard": Hubbard,
     "pt_moments": PartialTransposeMoments,
 }
 #: what ``estimate`` computes unless told otherwise
-DEFAULT_QUANTITIES = ("energy", "correlations", "purity", "mutual_information", "fidelity")
+DEFAULT_QUANTITIES = ("energy", "correlations", "purity", "mutual_information", "fidelity", "observables", "hubbard")
 
 __all__ = ["ACCUMULATORS", "DEFAULT_QUANTITIES", "Accumulator"]
