@@ -95,14 +95,17 @@ def describe(ds: xr.Dataset) -> str:
     depth = int(a.get("depth", 0))
     text = f"{ens} ensemble" + (f", depth {depth}" if ens == "shallow" or depth else "")
     series = "time" in ds.coords or "label" in ds.coords
-    text += f", {int(a.get('n_snapshots', 0))} snapshots" + (" (first shadow of the series)" if series else "")
+    text += f", {int(a.get('n_snapshots', 0))} snapshots" + (" (first of the series)" if series else "")
     if int(a.get("calibrated", 0)):
         text += ", robust (calibrated)"
     return text
 
 
 def caption(ds: xr.Dataset, title: str) -> str:
-    return (f"{title}  |  " if title else "") + describe(ds)
+    """The top line of a figure: time (in 1/(energy unit of the couplings), hbar = 1) or label, then describe()."""
+    if title.startswith("t = "):
+        title += " (1/energy unit of the couplings, ħ = 1)"
+    return (f"{title}\n" if title else "") + describe(ds)
 
 
 def _refuse(what: str) -> None:
