@@ -210,9 +210,8 @@ def estimate(shadow, model=None, subsystems=(), observables=None, target=None, c
     """
     from manybody.estimation.driver import estimate as _estimate
 
-    for name, value in (("observables", observables), ("scheduler", scheduler)):
-        if value is not None:
-            raise InputError(f"{name}: not available in this version of manybody", argument=name)
+    if observables is not None:
+        raise InputError("observables: not available in this version of manybody", argument="observables")
     shadow = _shadow(shadow)
     model = _model(model) if model is not None else stored_model(shadow)
     n_sites = model.n_sites if model is not None else int(np.max(shadow.qubit_site)) + 1
@@ -221,7 +220,8 @@ def estimate(shadow, model=None, subsystems=(), observables=None, target=None, c
     state, description = target_state(target, model, shadow.n_qubits)
     return _estimate(shadow, model, subsystems_of(subsystems, n_sites), _calibration(calibration, shadow),
                      n_blocks=int(blocks), method=errors, quantities=quantities, progress=progress,
-                     options={"target": state, "target_description": description, "bipartitions": bipartitions})
+                     options={"target": state, "target_description": description, "bipartitions": bipartitions},
+                     scheduler=scheduler)
 
 
 def target_state(target, model, n_qubits: int):
@@ -266,6 +266,12 @@ def estimate_series(shadows, **kwargs):
     shadows = [_shadow(s) for s in shadows]
     if not shadows:
         raise InputError("shadows: give at least one shadow", argument="shadows")
+    if kwargs.get("scheduler") in ("threads", "sync") and len(shadows) > 1:  # one task per shadow
+        import dask
+
+        serial = {**kwargs, "scheduler": None}
+        results = dask.compute(*[dask.delayed(estimate)(s, **serial) for s in shadows], scheduler=kwargs["scheduler"])
+        return combine_series(list(results), [s.label for s in shadows])
     return combine_series([estimate(s, **kwargs) for s in shadows], [s.label for s in shadows])
 
 

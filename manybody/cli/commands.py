@@ -165,7 +165,8 @@ def cmd_estimate(args) -> int:
             warnings.simplefilter("always", RuntimeWarning)
             try:
                 ds = mb.estimate(shadow, model=args.model, subsystems=args.subsystems, calibration=calibration,
-                                 target=args.target, bipartitions=args.bipartitions, errors=args.errors,
+                                 target=args.target, bipartitions=args.bipartitions, scheduler=args.scheduler,
+                                 errors=args.errors,
                                  blocks=args.blocks,
                                  quantities=None if not args.no_mutual_information else
                                  ("energy", "correlations", "purity", "fidelity", "observables", "hubbard",

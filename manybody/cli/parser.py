@@ -212,6 +212,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--model", metavar="SPEC.toml", help="model spec (default: the one stored in the shadow)")
     p.add_argument("--subsystems", metavar="LIST", help="subsystems for purities and Renyi-2 entropies")
     p.add_argument("--calibration", metavar="CAL.nc", help="shadow of |0...0> for robust (noise-aware) estimates")
+    p.add_argument("--scheduler", metavar="WHERE",
+                   help="read and accumulate the records in parallel with dask: 'threads' (this machine) or a "
+                        "dask.distributed scheduler address such as tcp://host:8786 (default: serial)")
+    p.add_argument("--bipartitions", metavar="A|B;...",
+                   help="moments of the partial transpose and the p3-PPT entanglement test of rho_AB, e.g. "
+                        "'0-1|2-3' (local ensemble, |A|+|B| <= 6 sites)")
     p.add_argument("--target", metavar="STATE",
                    help="also estimate the fidelity <psi|rho|psi> to this state: ground (of the model), a product "
                         "state (neel, zero, ... or letters 0 1 + -), STATE@SPEC.toml, or a state file (.nc)")

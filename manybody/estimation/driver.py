@@ -24,27 +24,35 @@ __all__ = ["estimate", "parse_subsystems", "Subsystem"]
 
 def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int = 20, method: str = "jackknife",
              correlations: bool = True, mutual_information: bool = True, chunk: int = 8192, progress=None,
-             quantities=None, options: dict | None = None) -> xr.Dataset:
+             quantities=None, options: dict | None = None, scheduler=None) -> xr.Dataset:
     """Estimates with error bars of the requested quantities (default: all that the shadow and model allow).
 
     ``quantities`` are names of :data:`manybody.estimation.accumulators.ACCUMULATORS`;
     ``correlations=False`` keeps the magnetization but skips the pair maps;
-    ``options`` are handed to every accumulator's ``build`` (for example a target state).
+    ``options`` are handed to every accumulator's ``build`` (for example a target state);
+    ``scheduler`` ("threads", "sync", a cluster address or a dask.distributed Client)
+    fills the accumulators part by part with dask (:mod:`manybody.estimation.parallel`).
     """
     if method not in METHODS:
         raise InputError(f"unknown error-bar method {method!r}; allowed: {', '.join(METHODS)}", argument="errors")
     setup, counts = _setup(shadow, model, subsystems, calibration, n_blocks, chunk)
     options = {"correlations": correlations, "mutual_information": mutual_information, **(options or {})}
-    accumulators = _accumulators(setup, quantities, options)
-    chunks = shadow.chunks(chunk)
-    for pos, bits, weights in (progress(chunks) if progress else chunks):
-        if weights.max(initial=1) != 1 or weights.min(initial=1) != 1:
-            pos, bits = np.repeat(pos, weights, axis=0), np.repeat(bits, weights, axis=0)
-        if len(pos) == 0:
-            continue
-        part = Chunk(setup, pos, bits)
-        for acc in accumulators:
-            acc.add(part)
+    if scheduler is not None:
+        from manybody.estimation.parallel import fill_parallel
+
+        names = quantities
+        accumulators = fill_parallel(setup, lambda s: _accumulators(s, names, options), chunk, scheduler)
+    else:
+        accumulators = _accumulators(setup, quantities, options)
+        chunks = shadow.chunks(chunk)
+        for pos, bits, weights in (progress(chunks) if progress else chunks):
+            if weights.max(initial=1) != 1 or weights.min(initial=1) != 1:
+                pos, bits = np.repeat(pos, weights, axis=0), np.repeat(bits, weights, axis=0)
+            if len(pos) == 0:
+                continue
+            part = Chunk(setup, pos, bits)
+            for acc in accumulators:
+                acc.add(part)
     for acc in accumulators:
         acc.finish()
     return _dataset(setup, accumulators, counts, method)

@@ -104,6 +104,12 @@ class Setup:
     subsystems: list = field(default_factory=list)
     setting_shots: np.ndarray | None = None  # snapshots of each setting
 
+    def with_shadow(self, shadow) -> "Setup":
+        """The same setup over another copy of the shadow (None: to be opened by a dask worker)."""
+        from dataclasses import replace
+
+        return replace(self, shadow=shadow)
+
     @property
     def ensemble(self):
         return self.shadow.ensemble
