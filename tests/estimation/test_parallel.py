@@ -26,14 +26,18 @@ def small_parts(monkeypatch):
 
 @pytest.mark.parametrize("ens,shots", [(LocalEnsemble(N), 1), (LocalEnsemble(N), 6),
                                        (ShallowEnsemble(N, 2, chain(N)), 1)], ids=["local", "local-shots", "shallow"])
-def test_threads_give_the_serial_results(ens, shots, small_parts):
+def test_threads_give_the_serial_results(ens, shots, small_parts, monkeypatch):
     # The serial path is the reference: sums over parts in another order agree to rounding (1e-12).
+    from manybody.estimation.accumulators import purity
+
+    monkeypatch.setattr(purity, "HISTOGRAM_MAX_SITES", 4)  # 0-7 then takes the pair-count path
     model = tfim_model(N)
     _, psi = exact.ground_state(model.hamiltonian)
     shadow = make_shadow(psi, ens, 12000 // shots, shots=shots, seed=5)
-    quantities = ("energy", "correlations", "mutual_information", "total_magnetization")
-    serial = estimate(shadow, model, quantities=quantities, chunk=2048)
-    threaded = estimate(shadow, model, quantities=quantities, chunk=2048, scheduler="threads")
+    quantities = ("energy", "correlations", "mutual_information", "total_magnetization", "purity")
+    subsystems = parse_subsystems("0-2;3,5;0-7" if ens.is_local else "0-2;3,5", N)
+    serial = estimate(shadow, model, subsystems, quantities=quantities, chunk=2048)
+    threaded = estimate(shadow, model, subsystems, quantities=quantities, chunk=2048, scheduler="threads")
     assert largest_difference(serial, threaded) < 1e-12
 
 
