@@ -32,6 +32,7 @@ class _Parser(argparse.ArgumentParser):
     """argparse that reports usage mistakes as one sentence with exit status 2."""
 
     def error(self, message):
+        message = re.sub(r"^argument (-[-\w]+)(?:/[-\w]+)?: (must )", r"\1 \2", message)  # "--settings must be ..."
         raise InputError(f"{self.prog}: {message} (see '{self.prog} --help')")
 
 
@@ -44,7 +45,7 @@ def whole(minimum: int = 0, maximum: int | None = None):
             raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
         if value < minimum or (maximum is not None and value > maximum):
             bound = f"from {minimum} to {maximum}" if maximum is not None else f"at least {minimum}"
-            raise argparse.ArgumentTypeError(f"{text} is out of range; allowed: {bound}")
+            raise argparse.ArgumentTypeError(f"must be {bound}, got {text}")
         return value
     return convert
 
@@ -58,8 +59,10 @@ def number(minimum: float, maximum: float, inclusive: bool = True):
             raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
         low_ok = value >= minimum if inclusive else value > minimum
         if not (low_ok and value <= maximum):
-            bracket = "[" if inclusive else "("
-            raise argparse.ArgumentTypeError(f"{text} is out of range; allowed: {bracket}{minimum:g}, {maximum:g}]")
+            if value <= 0 < minimum or (value <= 0 == minimum and not inclusive):
+                raise argparse.ArgumentTypeError(f"must be positive, got {text}")
+            low = "from" if inclusive else "above"
+            raise argparse.ArgumentTypeError(f"must be {low} {minimum:g} up to {maximum:g}, got {text}")
         return value
     return convert
 

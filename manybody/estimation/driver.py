@@ -105,5 +105,6 @@ def _dataset(setup, accumulators, counts, method) -> xr.Dataset:
              "ensemble": ens.kind, "depth": int(ens.depth), "error_method": method,
              "error_blocks": int(setup.n_blocks), "calibrated": int(setup.calibrated),
              "several_shots_per_setting": int(setup.multi), "tool_version": __version__,
-             "source": shadow.source, "label": str(shadow.label)}
+             "source": shadow.source, "label": str(shadow.label),
+             "model_spec": setup.model.spec.text if setup.model is not None else ""}
     return xr.Dataset(data, coords=coords, attrs=attrs)

@@ -89,7 +89,7 @@ def reference(model, state, times=None, subsystems=(), method: str = "auto", bon
                          ">= 1, a cutoff >= 0 and a positive time step")
     states, info = prepare(model, state, times, kind, int(bond_dim), float(cutoff), float(time_step))
     labels = [{} if t is None else {"time": t} for t, _ in states]
-    base = {"kind": "exact reference", "tool_version": __version__}
+    base = {"kind": "exact reference", "tool_version": __version__, "model_spec": model.spec.text}
     datasets = []
     for (t, psi), label in zip(progress(states) if progress else states, labels):
         datasets.append(_one_dataset(model, psi, subsystems, {**base, "label": str(label)}, kind))
