@@ -29,6 +29,7 @@ ACCUMULATORS = {
     "pt_moments": PartialTransposeMoments,
 }
 #: what ``estimate`` computes unless told otherwise
-DEFAULT_QUANTITIES = ("energy", "correlations", "purity", "mutual_information", "fidelity", "observables", "hubbard")
+DEFAULT_QUANTITIES = ("energy", "correlations", "purity", "mutual_information", "fidelity", "observables", "hubbard",
+                      "pt_moments")
 
 __all__ = ["ACCUMULATORS", "DEFAULT_QUANTITIES", "Accumulator"]
