@@ -35,7 +35,7 @@ def test_predicted_errors_match_observed_spread():
     # docs/design.md section 6) and for the energy (covariances between terms included) at depths 0-2.
     model, psi, expectation = setup()
     n_snap, eps = 1500, 0.1
-    ds = plan(model, eps, depths=(0, 1, 2), distance=1, expectation=expectation)
+    ds = plan(model, eps, depths=(0, 1, 2), distance=1, expectation=expectation, shots=1)
     zz = np.zeros(6, np.uint8)
     zz[[2, 3]] = 2
     for i, depth in enumerate((0, 1, 2)):
