@@ -96,7 +96,7 @@ def test_estimates_match_exact_expectations(kind):
     ens = {"local": LocalEnsemble(n), "shallow": ShallowEnsemble(n, 1, chain(n)), "global": GlobalEnsemble(n)}[kind]
     texts = ["zz=Z0 Z1", "exchange=0.5*X2 X3 + 0.5*Y2 Y3", "string=X1 X2 X3 X4", "shifted=1 - Z2 + 0.5*X3",
              "zstring=Z0 Z1 Z2 Z3 Z4 Z5"]
-    shadow = make_shadow(psi, ens, 6000, seed=11)
+    shadow = make_shadow(psi, ens, 2500 if kind == "global" else 6000, seed=11)  # global sampling is slow
     result = estimate(shadow, model, quantities=("observables",), options={"observables": texts})
     truth = [np.vdot(psi, dense_operator(parse_observable(t), n) @ psi).real for t in texts]
     assert list(result.observable_name.values) == [t.split("=")[0] for t in texts]

@@ -127,3 +127,17 @@ def test_bad_input():
         overlap(a, make_shadow(psi, LocalEnsemble(N), 100, seed=2), qubits=[0, 7])
     with pytest.raises(InputError, match="5 qubits"):
         overlap(a, make_shadow(ground(5), LocalEnsemble(5), 100, seed=2))
+
+
+def test_circuit_shadows_on_a_subsystem():
+    # qubits 1, 2 of the ground state from two depth-1 shadows: tr rho_A^2 by a numpy partial trace
+    psi = ground()
+    m = np.moveaxis(psi.reshape(2, 2, 2, 2), [1, 2], [0, 1]).reshape(4, 4)
+    rho_a = m @ m.conj().T
+    purity = float(np.trace(rho_a @ rho_a).real)
+    a = make_shadow(psi, ShallowEnsemble(N, 1, chain(N)), 4000, seed=13)
+    b = make_shadow(psi, ShallowEnsemble(N, 1, chain(N)), 4000, seed=14)
+    result = overlap(a, b, qubits=[2, 1])
+    assert result.attrs["qubits"] == "1,2" and result.attrs["method"] == "Pauli vectors"
+    check(result, "overlap", purity)
+    check(result, "normalized_overlap", 1.0)
