@@ -25,6 +25,7 @@ from manybody.api import (
     ingest,
     load_model,
     open_shadow,
+    overlap,
     parse_model,
     plan,
     reference,
@@ -35,4 +36,4 @@ from manybody.errors import InputError
 from manybody.simulation.noise import Noise
 
 __all__ = ["load_model", "parse_model", "draw_settings", "ingest", "open_shadow", "simulate", "estimate",
-           "estimate_series", "reference", "plan", "report", "InputError", "Noise", "__version__"]
+           "estimate_series", "overlap", "reference", "plan", "report", "InputError", "Noise", "__version__"]

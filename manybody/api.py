@@ -203,15 +203,16 @@ def estimate(shadow, model=None, subsystems=(), observables=None, target=None, c
     ``model=None`` uses the model stored in the shadow. ``calibration``: a
     shadow (or path) of |0...0> taken with the same ensemble, for robust
     (noise-aware) estimates. ``quantities`` picks accumulators by name
-    (default: energy, correlations, purity, mutual_information, and fidelity
-    with a ``target``). ``bipartitions``: "A|B" labels (e.g. "0-1|2-3;0|2") or
+    (default: energy, correlations, purity, mutual_information; fidelity
+    with a ``target``; user observables with ``observables``: "name=Z0 Z1",
+    "name=0.5*X0 X1 + 0.5*Y0 Y1", a list of them, or a dict name -> expression;
+    Hubbard site densities, double occupancy, spin and charge correlations and
+    hoppings for Hubbard models). ``bipartitions``: "A|B" labels (e.g. "0-1|2-3;0|2") or
     (sites_A, sites_B) pairs, for the moments of the partial transpose and the
     p3-PPT entanglement test (local ensemble).
     """
     from manybody.estimation.driver import estimate as _estimate
 
-    if observables is not None:
-        raise InputError("observables: not available in this version of manybody", argument="observables")
     shadow = _shadow(shadow)
     model = _model(model) if model is not None else stored_model(shadow)
     n_sites = model.n_sites if model is not None else int(np.max(shadow.qubit_site)) + 1
@@ -220,7 +221,8 @@ def estimate(shadow, model=None, subsystems=(), observables=None, target=None, c
     state, description = target_state(target, model, shadow.n_qubits)
     return _estimate(shadow, model, subsystems_of(subsystems, n_sites), _calibration(calibration, shadow),
                      n_blocks=int(blocks), method=errors, quantities=quantities, progress=progress,
-                     options={"target": state, "target_description": description, "bipartitions": bipartitions},
+                     options={"target": state, "target_description": description, "bipartitions": bipartitions,
+                              "observables": observables},
                      scheduler=scheduler)
 
 
@@ -252,6 +254,13 @@ def target_state(target, model, n_qubits: int):
     if size != n_qubits:
         raise InputError(f"target: the state has {size} qubits but the shadow has {n_qubits}", argument="target")
     return state, description
+
+
+def overlap(shadow_a, shadow_b, qubits=None, blocks: int = 20):
+    """tr(rho_a rho_b) and tr(rho_a rho_b)/max(tr rho_a^2, tr rho_b^2) of two shadows (a Dataset with errors)."""
+    from manybody.estimation.overlap import overlap as _overlap
+
+    return _overlap(_shadow(shadow_a), _shadow(shadow_b), qubits=qubits, n_blocks=int(blocks))
 
 
 def stored_model(shadow):

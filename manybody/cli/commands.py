@@ -149,7 +149,14 @@ def cmd_estimate(args) -> int:
     from manybody.io.results import combine_series, write_dataset
 
     target_file = args.target if args.target and os.path.isfile(args.target) else None
-    refuse_overwrite(args.output, [*args.shadows, args.calibration, args.model, target_file])
+    refuse_overwrite(args.output, [*args.shadows, args.calibration, args.model, target_file, args.observables_file,
+                                   args.overlap])
+    observables = list(args.observable or [])
+    if args.observables_file:
+        from manybody.measure.observables import load_observables
+
+        observables += load_observables(args.observables_file)
+    other = mb.open_shadow(args.overlap) if args.overlap else None
     shadows = [mb.open_shadow(p) for p in args.shadows]
     calibration = None
     if args.calibration:
@@ -166,6 +173,7 @@ def cmd_estimate(args) -> int:
             try:
                 ds = mb.estimate(shadow, model=args.model, subsystems=args.subsystems, calibration=calibration,
                                  target=args.target, bipartitions=args.bipartitions, scheduler=args.scheduler,
+                                 observables=observables or None,
                                  errors=args.errors,
                                  blocks=args.blocks,
                                  quantities=None if not args.no_mutual_information else
@@ -174,6 +182,8 @@ def cmd_estimate(args) -> int:
                                  progress=progress_bar(args, desc=os.path.basename(path), unit="chunk"))
             except InputError as exc:
                 raise InputError(f"{path}: {exc}", argument=exc.argument) from None
+            if other is not None:
+                ds = ds.assign(_overlap_variables(mb.overlap(shadow, other, blocks=args.blocks)))
         for w in caught:
             print(f"warning: {path}: {w.message}", file=sys.stderr)
         results.append(ds)
@@ -183,12 +193,23 @@ def cmd_estimate(args) -> int:
     return 0
 
 
+def _overlap_variables(ds) -> dict:
+    """The overlap variables (estimates, errors, intervals) of an overlap dataset."""
+    return {name: ds[name] for name in ds.data_vars if name.startswith(("overlap", "normalized_overlap"))}
+
+
 def _print_summary(path, ds):
     parts = [f"{path}: {ds.attrs['n_snapshots']} snapshots"]
     if "energy" in ds:
         parts.append(f"energy {float(ds.energy):.5g} +- {float(ds.energy_err):.2g}")
     if "fidelity" in ds:
         parts.append(f"fidelity {float(ds.fidelity):.4g} +- {float(ds.fidelity_err):.2g}")
+    if "overlap" in ds:
+        parts.append(f"overlap {float(ds.overlap):.4g} +- {float(ds.overlap_err):.2g} (normalised "
+                     f"{float(ds.normalized_overlap):.4g} +- {float(ds.normalized_overlap_err):.2g})")
+    if "observable" in ds:
+        for name, value, err in zip(ds.observable_name.values, ds.observable.values, ds.observable_err.values):
+            parts.append(f"{name} {value:.4g} +- {err:.2g}")
     if "ppt_significance" in ds:
         for label, sig in zip(ds.bipartition.values, ds.ppt_significance.values):
             parts.append(f"p3-PPT[{label}] {sig:+.1f} sigma")

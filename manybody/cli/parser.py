@@ -215,6 +215,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--model", metavar="SPEC.toml", help="model spec (default: the one stored in the shadow)")
     p.add_argument("--subsystems", metavar="LIST", help="subsystems for purities and Renyi-2 entropies")
     p.add_argument("--calibration", metavar="CAL.nc", help="shadow of |0...0> for robust (noise-aware) estimates")
+    p.add_argument("--observable", action="append", metavar="NAME=EXPR",
+                   help="a Pauli string or sum to estimate, e.g. 'string=Z0 Z1 Z2 Z3' or 'xy=0.5*X0 X1 + 0.5*Y0 Y1' "
+                        "(repeatable; qubit numbers from 0)")
+    p.add_argument("--observables-file", metavar="OBS.toml", help="named observables in a TOML file (docs/formats.md)")
+    p.add_argument("--overlap", metavar="OTHER.nc",
+                   help="also estimate tr(rho rho_other) and its normalised form with another shadow of the same qubits")
     p.add_argument("--scheduler", metavar="WHERE",
                    help="read and accumulate the records in parallel with dask: 'threads' (this machine) or a "
                         "dask.distributed scheduler address such as tcp://host:8786 (default: serial)")
@@ -295,7 +301,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 #: Python arguments whose command-line name is not --<argument>
-ARGUMENT_NAMES = {"spec": "SPEC.toml", "shadow": "SHADOW.nc", "shadows": "SHADOW.nc", "quantities": "--quantities"}
+ARGUMENT_NAMES = {"spec": "SPEC.toml", "shadow": "SHADOW.nc", "shadows": "SHADOW.nc", "quantities": "--quantities",
+                  "observables": "--observable", "shadow_a": "SHADOW.nc", "shadow_b": "--overlap"}
 
 
 def in_flags(exc) -> str:
