@@ -81,8 +81,6 @@ class Energy(Accumulator):
         self.sums.add("energy_sq_snap", chunk.onehot, energy**2)
         if self.setup.calibrated and self.setup.local:  # per-term means for the calibration's error
             self.sums.add("terms", chunk.onehot, values)
-        if self.setup.calibrated and self.setup.local:  # per-term means for the calibration's error
-            self.sums.add("terms", chunk.onehot, values)
         if self.squared is not None:
             h2 = square_values(values, energy, self.squared, lambda codes, lam: term_values(codes, lam, chunk))
             self.sums.add("h2", chunk.onehot, h2)
@@ -100,15 +98,6 @@ class Energy(Accumulator):
             mean_sq = (s["energy"] ** 2 - s["energy_within"]) / pair_count(s)
             out["energy_variance"] = s["h2"] / count - mean_sq
         return out
-
-    def calibration_gradients(self, full, counts):
-        """d/d ln lambda_q of sum_P c_P <P>: -sum over the terms P acting on q of c_P <P> (and per site)."""
-        if "terms" not in self.sums:
-            return {}
-        mean = self.sums.data["terms"].sum(axis=0) / counts["n"].sum()  # (T,)
-        support = (self.codes != 0).astype(float)  # (T, n)
-        return {"energy": -(self.coeffs * mean) @ support,
-                "energy_density": -(self.density * mean[:, None]).T @ support}
 
     def calibration_gradients(self, full, counts):
         """d/d ln lambda_q of sum_P c_P <P>: -sum over the terms P acting on q of c_P <P> (and per site)."""
