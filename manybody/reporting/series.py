@@ -23,9 +23,13 @@ def _chosen(n: int, limit: int) -> np.ndarray:
 
 
 def _figure(ds, what, width, height) -> Figure:
-    fig = Figure(figsize=(width, height), layout="constrained")
+    import textwrap
+
+    width = max(width, 5.0)
+    fig = Figure(figsize=(width, height + 0.3), layout="constrained")
     times = ", ".join(f"{t:g}" for t in ds.time.values)
-    fig.suptitle(f"{what}\n{fr.describe(ds)}; t = {times}", fontsize=10)
+    lines = textwrap.wrap(f"{fr.describe(ds)}; t = {times}", width=int(width * 12))  # about 12 characters per inch
+    fig.suptitle("\n".join([what, *lines]), fontsize=10)
     return fig
 
 

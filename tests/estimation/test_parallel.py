@@ -33,7 +33,7 @@ def test_threads_give_the_serial_results(ens, shots, small_parts, monkeypatch):
     monkeypatch.setattr(purity, "HISTOGRAM_MAX_SITES", 4)  # 0-7 then takes the pair-count path
     model = tfim_model(N)
     _, psi = exact.ground_state(model.hamiltonian)
-    shadow = make_shadow(psi, ens, 12000 // shots, shots=shots, seed=5)
+    shadow = make_shadow(psi, ens, 6000 // shots, shots=shots, seed=5)
     quantities = ("energy", "correlations", "mutual_information", "total_magnetization", "purity")
     subsystems = parse_subsystems("0-2;3,5;0-7" if ens.is_local else "0-2;3,5", N)
     serial = estimate(shadow, model, subsystems, quantities=quantities, chunk=2048)
