@@ -49,7 +49,7 @@ from manybody import __version__
 from manybody.errors import InputError
 from manybody.estimation.accumulators.purity import HISTOGRAM_MAX_SITES, PAULI_VECTOR_MAX_QUBITS, memoized
 from manybody.estimation.errorbars import jackknife_error
-from manybody.estimation.kernels import histogram_index, histogram_pair_sum, pair_count_sum, site_factor_matrix, words
+from manybody.estimation.kernels import histogram_index, pair_count_sum, site_factor_matrix, words
 from manybody.estimation.pair_sums import outcome_within
 from manybody.estimation.stabilizer import add_sums, pauli_vector_sums, support_products
 

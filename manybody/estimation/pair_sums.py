@@ -127,3 +127,24 @@ def mi_purities(s, n, inv, pairs, multi):
     out = purity_pair.copy()
     out[np.diag_indices(n)] = purity_single
     return out
+
+
+def mi_purities_paulis_within(s, n, near_pairs, pairs):
+    """As :func:`mi_purities_paulis` for several shots per setting: the pairs within a setting left out.
+
+    sum over pairs from different settings = |V|^2 - sum_s |V_s|^2, with per setting
+    |V_s|^2 = n_s^2 + sum M_sa^2 + sum M_sb^2 + sum C_sab^2 (M, C: the setting's one- and
+    two-site sums); with one shot per setting this is the sum of squares of the one-shot form.
+    """
+    count, n2 = s["n"], s["n2"]
+    mag = s["mag"]  # (3, n)
+    corr = correlation_matrix(s, n, near_pairs)
+    within = correlation_matrix(s, n, near_pairs, "corr_w", "near_w")
+    m2 = np.sum(mag**2, axis=0)
+    m2w = s["mag_w"].reshape(3, n).sum(axis=0)
+    vv = count**2 + m2[:, None] + m2[None, :] + np.einsum("xayb,xayb->ab", corr, corr)
+    ww = n2 + m2w[:, None] + m2w[None, :] + np.einsum("xayb->ab", within)
+    out = (vv - ww) / (4 * pairs)
+    out[np.diag_indices(n)] = (count**2 + m2 - n2 - m2w) / (2 * pairs)
+    return out
+

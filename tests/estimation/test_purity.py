@@ -71,3 +71,31 @@ def test_ten_qubit_subsystem_from_shallow_shadows_matches_the_exact_purity():
     small = exact.purity(exact.reduced_density_matrix(psi, [1, 2, 3, 4]))
     ok, worst = within(result.purity.values, result.purity_err.values, [reference, small])
     assert ok, worst
+
+
+@pytest.mark.parametrize("shots", [1, 10])
+def test_circuit_mutual_information_map_with_one_or_many_shots(shots):
+    # Exact I2 of every site pair from numpy reduced density matrices of the scipy ground state;
+    # with several shots per setting the pairs within a setting are left out.
+    from tests.helpers import tfim_model
+
+    n = 6
+    model = tfim_model(n)
+    _, psi = exact.ground_state(model.hamiltonian)
+    single = [exact.purity(exact.reduced_density_matrix(psi, [q])) for q in range(n)]
+    mi = np.full((n, n), np.nan)
+    for a in range(n):
+        for b in range(n):
+            if a != b:
+                mi[a, b] = np.log(exact.purity(exact.reduced_density_matrix(psi, [a, b])) / single[a] / single[b])
+    shadow = make_shadow(psi, ShallowEnsemble(n, 1, chain(n)), 20000 // shots, shots=shots, seed=3)
+    result = estimate(shadow, model, quantities=("mutual_information",))
+    ok, worst = within(result.mutual_information.values, result.mutual_information_err.values, mi, blocks=20)
+    assert ok, worst
+    # the distance profile: mean I2 over the pairs at each distance (a chain: |a - b|)
+    by_distance = [np.nanmean([mi[a, a + d] for a in range(n - d)] + [mi[a + d, a] for a in range(n - d)])
+                   for d in range(1, n)]
+    assert list(result.distance.values) == [1, 2, 3, 4, 5]
+    ok, worst = within(result.mutual_information_distance.values, result.mutual_information_distance_err.values,
+                       by_distance, blocks=20)
+    assert ok, worst

@@ -2,9 +2,10 @@
 
 Local ensemble: every single-site and site-pair purity at once from the
 Gram matrix of one-hot (basis, outcome) words (docs/design.md section 4).
-Circuit ensembles (one shot per setting): two-site Pauli vectors from the
-one-site estimates (exact where light cones do not overlap) and the
-explicit near pairs.
+Circuit ensembles: two-site Pauli vectors from the one-site estimates
+(exact where light cones do not overlap) and the explicit near pairs; with
+several shots per setting, the pairs of shots within a setting are left out
+through per-setting sums.
 """
 
 from __future__ import annotations
@@ -20,7 +21,8 @@ from manybody.estimation.errorbars import (
     replicates,
 )
 from manybody.estimation.kernels import words
-from manybody.estimation.pair_sums import mi_purities, mi_purities_paulis, mi_within
+from manybody.estimation.pair_sums import mi_purities, mi_purities_paulis, mi_purities_paulis_within, mi_within
+from manybody.estimation.sums import within_sums
 
 #: per-setting joint outcome counts are kept only while settings x (2n)^2 stays below this
 MAX_JOINT_ENTRIES = 2e7
@@ -33,7 +35,8 @@ class MutualInformation(Accumulator):
             return None
         if setup.local:
             return LocalMutualInformation(setup)
-        if options.get("correlations", True) and not setup.multi:
+        within_entries = setup.n_settings * (3 * setup.n_qubits) ** 2  # per-setting two-site sums
+        if options.get("correlations", True) and (not setup.multi or within_entries <= MAX_JOINT_ENTRIES):
             return CircuitMutualInformation(setup)
         return None
 
@@ -65,8 +68,13 @@ class MutualInformation(Accumulator):
             mi_reps = np.array([mutual_information(w * a + (1 - w) * b)
                                 for a, b in zip(loo["mi_purity"], loo["mi_purity_within"])])
         err = jackknife_error(mi_reps)
-        return ({"mutual_information": bias_corrected(mi, mi_reps)},
-                {"mutual_information": err, "mutual_information:halfwidth": interval_halfwidth(mi_reps, err)})
+        full = {"mutual_information": bias_corrected(mi, mi_reps)}
+        errors = {"mutual_information": err, "mutual_information:halfwidth": interval_halfwidth(mi_reps, err)}
+        shells, index = distance_shells(self.setup)
+        by_distance = np.array([shell_means(r, index, len(shells)) for r in mi_reps])
+        full["mutual_information_distance"] = bias_corrected(shell_means(mi, index, len(shells)), by_distance)
+        errors["mutual_information_distance"] = jackknife_error(by_distance)
+        return full, errors
 
     def variables(self, full, err, data, coords):
         if "mutual_information" not in full:
@@ -82,6 +90,28 @@ class MutualInformation(Accumulator):
         half = np.asarray(err.get("mutual_information:halfwidth", 2 * mi_err), float)
         data["mutual_information_lo"] = (("site_a", "site_b"), mi - half)
         data["mutual_information_hi"] = (("site_a", "site_b"), mi + half)
+        coords["distance"] = distance_shells(self.setup)[0]
+        data["mutual_information_distance"] = (("distance",), np.asarray(full["mutual_information_distance"], float))
+        data["mutual_information_distance_err"] = (("distance",),
+                                                   np.asarray(err["mutual_information_distance"], float))
+
+
+def distance_shells(setup):
+    """Distinct distances between the sites (lattice positions; chain order without a model), and each pair's shell."""
+    positions = (setup.model.lattice.positions if setup.model is not None
+                 else np.column_stack([np.arange(setup.n_qubits), np.zeros(setup.n_qubits)]))
+    dist = np.round(np.linalg.norm(positions[:, None, :] - positions[None, :, :], axis=2), 6)
+    shells, index = np.unique(dist, return_inverse=True)
+    return shells[1:], index.reshape(dist.shape) - 1  # shell -1: a site with itself
+
+
+def shell_means(mi, index, n_shells):
+    """Mean of I2 over the site pairs at each distance (NaN entries left out)."""
+    ok = (index >= 0) & np.isfinite(mi)
+    total = np.bincount(index[ok], weights=mi[ok], minlength=n_shells)
+    count = np.bincount(index[ok], minlength=n_shells)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return total / count
 
 
 def mutual_information(purity: np.ndarray) -> np.ndarray:
@@ -136,16 +166,42 @@ class LocalMutualInformation(MutualInformation):
 
 
 class CircuitMutualInformation(MutualInformation):
+    """Two-site Pauli vectors; with several shots per setting, per-setting sums leave out pairs within a setting."""
+
     def add(self, chunk):
         f = chunk.columns
         flat = f.reshape(len(chunk), -1)
         self.sums.add("mag", chunk.onehot, f)
         self.sums.add_gram("corr", chunk.runs, flat)
+        near = chunk.near_values if self.setup.near_pairs else None
+        if near is not None:
+            self.sums.add("near", chunk.onehot, near)
+        if self.setup.multi:
+            self.per_setting.add("mag", chunk.pos, flat)
+            step = max(1, int(4e6 // flat.shape[1] ** 2))  # bounded temporaries of shots x (3n)^2
+            for start in range(0, len(chunk), step):
+                rows = slice(start, start + step)
+                self.per_setting.add("gram", chunk.pos[rows], flat[rows, :, None] * flat[rows, None, :])
+            if near is not None:
+                self.per_setting.add("near", chunk.pos, near)
+            return
         self.sums.add_gram("corr_sq", chunk.runs, flat * flat)
-        if self.setup.near_pairs:
-            vals = chunk.near_values
-            self.sums.add("near", chunk.onehot, vals)
-            self.sums.add("near_sq", chunk.onehot, vals**2)
+        if near is not None:
+            self.sums.add("near_sq", chunk.onehot, near**2)
+
+    def finish(self):
+        if not self.setup.multi:
+            return
+        setup = self.setup
+        for name, key in (("mag", "mag_w"), ("gram", "corr_w"), ("near", "near_w")):
+            if name in self.per_setting:
+                values = self.per_setting[name]
+                flat = values.reshape(len(values), -1)
+                within = within_sums(flat, setup.setting_block, setup.n_blocks)
+                self.sums.add_blocks(key, within.reshape((setup.n_blocks,) + values.shape[1:]))
 
     def pair_purities(self, s):
-        return mi_purities_paulis(s, self.setup.n_qubits, self.setup.near_pairs, pair_count(s))
+        n, near = self.setup.n_qubits, self.setup.near_pairs
+        if self.setup.multi:
+            return mi_purities_paulis_within(s, n, near, pair_count(s))
+        return mi_purities_paulis(s, n, near, pair_count(s))
