@@ -308,8 +308,13 @@ def reference(model, state="ground", times=None, subsystems=(), observables=None
 
 
 # ----------------------------------------------------------------- planning
-def plan(model, error: float, depths=(0, 1, 2, 3), shots: int = 1, subsystems=(), pilot=None, distance: int = 1):
-    """Snapshots and settings needed at each depth for a one-sigma ``error`` (a Dataset; docs/design.md section 6)."""
+def plan(model, error: float, depths=(0, 1, 2, 3), shots: int | None = 1, subsystems=(), pilot=None, distance: int = 1,
+         setting_time: float | None = None, shot_time: float | None = None):
+    """Snapshots and settings needed at each depth for a one-sigma ``error`` (a Dataset; docs/design.md section 6).
+
+    ``shots``: shots per setting; None lets the planner pick the cheapest under the cost model
+    (``setting_time`` seconds per setting change, ``shot_time`` seconds per shot).
+    """
     from manybody.planning.budget import pilot_expectations
     from manybody.planning.budget import plan as _plan
 
@@ -326,8 +331,14 @@ def plan(model, error: float, depths=(0, 1, 2, 3), shots: int = 1, subsystems=()
             raise InputError(f"pilot: the pilot has {pilot.n_qubits} qubits but the model {model.n_qubits}",
                              argument="pilot")
         expectation = pilot_expectations(pilot)
+    from manybody.planning.budget import SETTING_TIME, SHOT_TIME
+
+    costs = {"setting_time": SETTING_TIME if setting_time is None else float(setting_time),
+             "shot_time": SHOT_TIME if shot_time is None else float(shot_time)}
+    if not (costs["setting_time"] >= 0 and costs["shot_time"] >= 0):
+        raise InputError("setting_time and shot_time must be 0 or more (seconds)", argument="setting_time")
     return _plan(model, float(error), depths, int(distance), subsystems_of(subsystems, model.n_sites), expectation,
-                 max(1, int(shots)))
+                 None if shots is None else max(1, int(shots)), **costs)
 
 
 # ---------------------------------------------------------------- reporting

@@ -241,7 +241,8 @@ def cmd_plan(args) -> int:
     except ValueError:
         raise InputError(f"--depths {args.depths!r}: expected whole numbers separated by commas") from None
     refuse_overwrite(args.output, [args.spec, args.pilot])
-    ds = mb.plan(args.spec, args.error, depths, args.shots, args.subsystems, args.pilot, args.distance)
+    ds = mb.plan(args.spec, args.error, depths, args.shots, args.subsystems, args.pilot, args.distance,
+                 setting_time=args.setting_time, shot_time=args.shot_time)
     print(format_plan(ds))
     if args.output:
         write_dataset(ds, args.output)

@@ -117,7 +117,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--distance", type=whole(1, 1000), default=1, help="correlations up to this graph distance (default 1)")
     p.add_argument("--subsystems", metavar="LIST", help="subsystems whose purities must reach EPS")
     p.add_argument("--pilot", metavar="SHADOW.nc", help="pilot shadow: use its estimated expectation values")
-    p.add_argument("--shots", type=whole(1), default=1, help="shots per setting (default 1)")
+    p.add_argument("--shots", type=whole(1), default=None,
+                   help="shots per setting (default: the cheapest under the cost model below)")
+    p.add_argument("--setting-time", type=number(0.0, 1e6), default=None, metavar="SECONDS",
+                   help="time to change the setting (default 0.1 s)")
+    p.add_argument("--shot-time", type=number(0.0, 1e6), default=None, metavar="SECONDS",
+                   help="time per shot (default 0.001 s)")
     p.add_argument("-o", "--output", metavar="plan.nc", help="also write the table as a dataset")
     p.set_defaults(func=cmd_plan)
 
