@@ -83,3 +83,17 @@ def within(est, err, ref, sigmas=4.0, blocks=None):
         sigmas = max(sigmas, float(stats.t.isf(0.0005 / max(int(ok.sum()), 1), blocks - 1)))
     return bool(np.all(np.abs(est - ref)[ok] <= sigmas * err[ok] + 1e-12)), float(
         np.max((np.abs(est - ref) / np.maximum(err, 1e-300))[ok], initial=0))
+
+
+def run_cli(*args, cwd):
+    """The manybody command line in a subprocess, from the source tree: the CompletedProcess (text output)."""
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    env = {**os.environ, "PYTHONPATH": str(root)}
+    return subprocess.run([sys.executable, "-m", "manybody", *map(str, args)], capture_output=True, text=True,
+                          cwd=cwd, env=env, timeout=300)
+

@@ -1,24 +1,19 @@
 """estimate --observable, --observables-file and --overlap through the command line and the Python API."""
 
-import os
-import subprocess
-import sys
 from pathlib import Path
 
 import xarray as xr
 
 import manybody as mb
 from manybody.references import exact
-from tests.helpers import within
+from tests.helpers import run_cli, within
 
 ROOT = Path(__file__).resolve().parents[2]
 SPEC = '[lattice]\nkind = "chain"\nsize = [4]\n[model]\nkind = "tfim"\nJ = 1.0\nh = 0.7\n'
 
 
 def run(*args, cwd):
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
-    return subprocess.run([sys.executable, "-m", "manybody", *map(str, args)], capture_output=True, text=True,
-                          cwd=cwd, env=env, timeout=300)
+    return run_cli(*args, cwd=cwd)
 
 
 def test_observables_and_overlap_from_the_command_line(tmp_path):

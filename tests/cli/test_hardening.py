@@ -9,14 +9,14 @@ from pathlib import Path
 
 import pytest
 
+from tests.helpers import run_cli
+
 ROOT = Path(__file__).resolve().parents[2]
 CHAIN = '[lattice]\nkind = "chain"\nsize = [6]\n[model]\nkind = "tfim"\n'
 
 
 def run(*args, cwd):
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
-    return subprocess.run([sys.executable, "-m", "manybody", *map(str, args)], capture_output=True, text=True,
-                          cwd=cwd, env=env, timeout=300)
+    return run_cli(*args, cwd=cwd)
 
 
 def one_sentence(out):
