@@ -31,16 +31,6 @@ def merge(acc, other) -> None:
             acc.per_setting.data[name] = values.copy()
     if hasattr(acc, "merge_state"):
         acc.merge_state(other)
-    elif hasattr(acc, "pair_words"):  # local purities of large subsystems: word lists per subsystem
-        for i, parts in other.pair_words.items():
-            acc.pair_words.setdefault(i, []).extend(parts)
-    elif hasattr(acc, "parts") and hasattr(acc, "pending"):  # circuit purities: per-block Pauli-vector sums
-        from manybody.estimation.stabilizer import add_sums
-
-        for mine, theirs in zip(acc.parts, other.parts):
-            for block, part in theirs.items():
-                mine[block] = part if block not in mine else add_sums(mine[block], part)
-        acc.pending = tuple(np.concatenate([a, b]) for a, b in zip(acc.pending, other.pending))
 
 
 def record_parts(n_records: int, part: int = PART_RECORDS) -> list[tuple[int, int]]:

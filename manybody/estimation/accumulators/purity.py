@@ -97,6 +97,11 @@ class LocalPurity(Purity):
                 self.pair_words.setdefault(i, []).append(
                     (words(chunk.basis[:, qs], chunk.bits[:, qs]), chunk.pos, chunk.block_index))
 
+    def merge_state(self, other):
+        """dask parts: the word lists of the pair-count subsystems (their sums are not per block)."""
+        for i, parts in other.pair_words.items():
+            self.pair_words.setdefault(i, []).extend(parts)
+
     def _add_histogram(self, i, qs, chunk):
         k = len(qs)
         idx = histogram_index(words(chunk.basis[:, qs], chunk.bits[:, qs]))
@@ -237,6 +242,13 @@ class CircuitPurity(Purity):
         complete = seen[pos] >= self.setup.setting_shots[pos]
         self.pending = (pos[~complete], bits[~complete])
         self._add_settings(pos[complete], bits[complete])
+
+    def merge_state(self, other):
+        """dask parts: per-block Pauli-vector sums, and the shots of settings still open in either part."""
+        for mine, theirs in zip(self.parts, other.parts):
+            for block, part in theirs.items():
+                mine[block] = part if block not in mine else add_sums(mine[block], part)
+        self.pending = tuple(np.concatenate([a, b]) for a, b in zip(self.pending, other.pending))
 
     def finish(self):
         self._add_settings(*self.pending)
