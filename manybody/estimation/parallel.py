@@ -7,7 +7,8 @@ a dask.distributed cluster, and the parts merged in a fixed order. The
 results equal the serial ones up to the order of floating-point additions.
 
 Accumulators with state beyond their sums (purities kept per setting or per
-pair of snapshots) add it in ``merge_state(other)``.
+pair of snapshots, counts of visible strings) add it in ``merge_state(other)``;
+an accumulator that keeps other attributes in ``add`` must define it.
 """
 
 from __future__ import annotations

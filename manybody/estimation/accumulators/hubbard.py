@@ -118,6 +118,11 @@ class Hubbard(Accumulator):
             return None
         return cls(setup)
 
+    def merge_state(self, other):
+        """dask parts: how often each string was visible."""
+        for name in ("seen_z", "seen_zz", "seen_near", "seen_other"):
+            setattr(self, name, getattr(self, name) + getattr(other, name))
+
     def add(self, chunk):
         setup, n = self.setup, self.setup.n_qubits
         if setup.local:

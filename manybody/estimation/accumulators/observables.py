@@ -50,6 +50,10 @@ class Observables(Accumulator):
             return None
         return cls(setup, items)
 
+    def merge_state(self, other):
+        """dask parts: how often each string was visible."""
+        self.seen += other.seen
+
     def add(self, chunk):
         values = term_values(self.codes, self.lam_terms, chunk)  # (N, T)
         self.seen += np.count_nonzero(values, axis=0)
