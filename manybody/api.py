@@ -309,11 +309,12 @@ def reference(model, state="ground", times=None, subsystems=(), observables=None
 
 # ----------------------------------------------------------------- planning
 def plan(model, error: float, depths=(0, 1, 2, 3), shots: int | None = 1, subsystems=(), pilot=None, distance: int = 1,
-         setting_time: float | None = None, shot_time: float | None = None):
+         setting_time: float | None = None, shot_time: float | None = None, observables=None, target=None):
     """Snapshots and settings needed at each depth for a one-sigma ``error`` (a Dataset; docs/design.md section 6).
 
     ``shots``: shots per setting; None lets the planner pick the cheapest under the cost model
-    (``setting_time`` seconds per setting change, ``shot_time`` seconds per shot).
+    (``setting_time`` seconds per setting change, ``shot_time`` seconds per shot). ``observables``
+    and ``target`` (as in :func:`estimate`) add their columns: there depth pays off.
     """
     from manybody.planning.budget import pilot_expectations
     from manybody.planning.budget import plan as _plan
@@ -337,8 +338,20 @@ def plan(model, error: float, depths=(0, 1, 2, 3), shots: int | None = 1, subsys
              "shot_time": SHOT_TIME if shot_time is None else float(shot_time)}
     if not (costs["setting_time"] >= 0 and costs["shot_time"] >= 0):
         raise InputError("setting_time and shot_time must be 0 or more (seconds)", argument="setting_time")
+    extra = {}
+    if observables is not None:
+        from manybody.measure.observables import observables_from
+
+        extra["observables"] = [(name, op) for name, op, _ in observables_from(observables, model.n_qubits)]
+    if target is not None:
+        from manybody.references.exact import MAX_EXACT_QUBITS
+
+        if model.n_qubits > MAX_EXACT_QUBITS:
+            raise InputError(f"target: planning the fidelity needs a dense target, at most {MAX_EXACT_QUBITS} qubits",
+                             argument="target")
+        extra["target"] = target_state(target, model, model.n_qubits)[0]
     return _plan(model, float(error), depths, int(distance), subsystems_of(subsystems, model.n_sites), expectation,
-                 None if shots is None else max(1, int(shots)), **costs)
+                 None if shots is None else max(1, int(shots)), **costs, **extra)
 
 
 # ---------------------------------------------------------------- reporting

@@ -241,9 +241,18 @@ def cmd_plan(args) -> int:
     except ValueError:
         raise InputError(f"--depths {args.depths!r}: expected whole numbers separated by commas") from None
     refuse_overwrite(args.output, [args.spec, args.pilot])
+    refuse_overwrite(args.figure, [args.spec, args.pilot])
     ds = mb.plan(args.spec, args.error, depths, args.shots, args.subsystems, args.pilot, args.distance,
-                 setting_time=args.setting_time, shot_time=args.shot_time)
+                 setting_time=args.setting_time, shot_time=args.shot_time, observables=args.observable,
+                 target=args.target)
     print(format_plan(ds))
+    if args.figure:
+        from manybody.io.files import atomic_path
+        from manybody.reporting.plan import plan_figure
+
+        with atomic_path(args.figure, os.path.splitext(args.figure)[1]) as tmp:
+            plan_figure(ds).savefig(tmp, dpi=150)
+        print(f"wrote {args.figure}")
     if args.output:
         write_dataset(ds, args.output)
         print(f"wrote {args.output}")

@@ -119,6 +119,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--pilot", metavar="SHADOW.nc", help="pilot shadow: use its estimated expectation values")
     p.add_argument("--shots", type=whole(1), default=None,
                    help="shots per setting (default: the cheapest under the cost model below)")
+    p.add_argument("--observable", action="append", metavar="NAME=EXPR",
+                   help="also plan for this Pauli string or sum, e.g. 'string=Z0 Z1 Z2 Z3' (repeatable)")
+    p.add_argument("--target", metavar="STATE", help="also plan for the fidelity to this state (ground, a product "
+                                                     "state, STATE@SPEC.toml or a state file)")
+    p.add_argument("--figure", metavar="PLAN.png", help="draw the predicted error of every quantity against depth")
     p.add_argument("--setting-time", type=number(0.0, 1e6), default=None, metavar="SECONDS",
                    help="time to change the setting (default 0.1 s)")
     p.add_argument("--shot-time", type=number(0.0, 1e6), default=None, metavar="SECONDS",

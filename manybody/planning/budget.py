@@ -199,7 +199,8 @@ def _inverse_eigenvalue_sums(qubits, ens) -> tuple[float, float]:
 
 
 def plan(model, eps: float, depths=(0, 1, 2, 3, 4), distance: int = 1, subsystems=(), expectation=None,
-         shots: int | None = None, setting_time: float = SETTING_TIME, shot_time: float = SHOT_TIME) -> xr.Dataset:
+         shots: int | None = None, setting_time: float = SETTING_TIME, shot_time: float = SHOT_TIME,
+         observables=(), target=None) -> xr.Dataset:
     """Settings x shots needed at each depth for energy, energy per site, correlations up to ``distance``, purities.
 
     ``expectation`` (optional, from a pilot shadow) maps a PauliExpansion to the
@@ -207,15 +208,20 @@ def plan(model, eps: float, depths=(0, 1, 2, 3, 4), distance: int = 1, subsystem
     shots per setting; None picks the cheapest of SHOT_CHOICES under the cost
     model (seconds per setting change and per shot). Per target the table gives
     snapshots = settings x shots; ``settings`` is the largest requirement.
+    ``observables``: (name, PauliExpansion) pairs, the worst of them in column
+    ``observable``; ``target``: a dense state vector whose fidelity column is
+    the variance of the fidelity estimator on the target itself.
     """
     pairs = _pairs(model, distance)
     choices = (int(shots),) if shots else SHOT_CHOICES
-    columns = ("energy", "energy_density", "correlation", "purity")
+    columns = ("energy", "energy_density", "correlation", "purity") + (("observable",) if len(observables) else ()) \
+        + (("fidelity",) if target is not None else ())
     rows = {name: [] for name in columns + ("settings", "shots", "snapshots", "time")}
     allowed = []
     for d in depths:
         ens = _ensemble(model, d)
         targets = _targets(model, ens, pairs, subsystems, expectation, eps)
+        targets.update(_more_targets(ens, observables, target, expectation, eps))
         best = None
         for k in choices:
             need = {name: max((f(k) for f in targets[name]), default=0.0) for name in columns}
@@ -308,10 +314,55 @@ def _targets(model, ens, pairs, subsystems, expectation, eps):
     return out
 
 
+#: snapshots of the target's own shadow that estimate the fidelity's per-snapshot variance
+FIDELITY_SAMPLES = 2000
+
+
+def _more_targets(ens, observables, target, expectation, eps):
+    """Columns for user observables (like the energy: sum_P |c_P| / sqrt(lambda_P) worst case, or the pilot) and
+    for the fidelity to a target state (variance of the estimator on the target itself, by sampling)."""
+    out = {}
+    if len(observables):
+        calls = []
+        for _, op in observables:
+            op = op.combined(atol=1e-12)
+            keep = op.weights > 0
+            if not keep.any():
+                continue
+            terms = PauliExpansion(op.n_qubits, op.x[keep], op.z[keep], op.coeffs[keep].real)
+            snap, between = ((energy_variance_bound(terms, ens),) * 2 if expectation is None
+                             else energy_variances(terms, ens, expectation))
+            calls.append(lambda k, a=snap, b=between: setting_variance(a, b, k) / eps**2)
+        out["observable"] = calls
+    if target is not None:
+        variance = fidelity_variance(target, ens)
+        out["fidelity"] = [lambda k: variance / eps**2]  # shots of one setting counted as adding nothing
+    return out
+
+
+def fidelity_variance(target, ens, samples: int = FIDELITY_SAMPLES, seed: int = 7) -> float:
+    """Per-snapshot variance of the fidelity estimator when the measured state is the target itself.
+
+    Monte Carlo over ``samples`` snapshots drawn by exact Born sampling of the
+    target (fixed seed, so the plan is reproducible); the exact variance would
+    need the ensemble's third moment.
+    """
+    from manybody.estimation.fidelity import dense_target, fidelity_snapshots
+    from manybody.simulation.sampling import sample_dense
+
+    psi = dense_target(target)
+    rng = np.random.default_rng(seed)
+    settings = ens.draw(samples, rng)
+    bits = sample_dense(psi, ens, settings, 1, rng)
+    values = fidelity_snapshots(psi, ens, settings, np.arange(samples), bits)
+    return float(np.var(values, ddof=1))
+
+
 def format_plan(ds: xr.Dataset) -> str:
     cols = [("depth", "depth"), ("energy", "energy"), ("energy_density", "energy/site"),
-            ("correlation", f"corr (r<={ds.attrs['distance']})"), ("purity", "purity"),
-            ("snapshots", "needed"), ("settings", "settings"), ("shots", "shots"), ("time", "time [h]")]
+            ("correlation", f"corr (r<={ds.attrs['distance']})"), ("purity", "purity")]
+    cols += [(name, name) for name in ("observable", "fidelity") if name in ds]
+    cols += [("snapshots", "needed"), ("settings", "settings"), ("shots", "shots"), ("time", "time [h]")]
     lines = [f"snapshots for a one-sigma error of {ds.attrs['error']:g} ({ds.attrs['method']} variances)",
              "  ".join(f"{title:>14}" for _, title in cols)]
     for i, d in enumerate(ds.depth.values):
