@@ -212,8 +212,12 @@ def build_parser() -> argparse.ArgumentParser:
         "estimate", formatter_class=_formatter, help="estimates with error bars from shadow files",
         description=(
             "Estimate energy, energy density, energy variance, magnetization, correlation maps,\n"
-            "purities, Renyi-2 entropies and the mutual-information map, each with a one-sigma\n"
-            "error bar (delete-one-block jackknife over blocks of whole settings by default).\n"
+            "purities, Renyi-2 entropies and the mutual-information map (Hubbard models: densities,\n"
+            "double occupancy, spin and charge correlations, hoppings), and on request the fidelity\n"
+            "to a target, your own Pauli observables, the overlap with another shadow and the\n"
+            "moments of the partial transpose. Each comes with a one-sigma error bar (delete-one-block\n"
+            "jackknife over blocks of whole settings) and, where the spread is skewed, an interval\n"
+            "x_lo, x_hi.\n"
             "Several shadows (a quench series) give one dataset with a time (or label) dimension.\n"
             "LIST: subsystems separated by ';', each an inclusive range a-b or a list a,b,c of sites;\n"
             "'profile' gives the entropy profile 0;0-1;0-2;... up to half the system."),
