@@ -107,16 +107,6 @@ def _probability(text: str, what: str) -> float:
     return p
 
 
-def _times(text: str) -> list[float]:
-    try:
-        times = [float(t) for t in text.split(",") if t.strip()]
-    except ValueError:
-        raise InputError(f"--times {text!r}: expected numbers separated by commas, e.g. 0,0.5,1") from None
-    if not times or any(t < 0 for t in times) or sorted(times) != times:
-        raise InputError(f"--times {text!r}: expected non-negative times in increasing order")
-    return times
-
-
 def cmd_simulate(args) -> int:
     from manybody.simulation.experiment import Noise, simulate
 

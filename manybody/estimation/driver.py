@@ -45,17 +45,22 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
     else:
         accumulators = _accumulators(setup, quantities, options)
         chunks = shadow.chunks(chunk)
-        for pos, bits, weights in (progress(chunks) if progress else chunks):
-            if weights.max(initial=1) != 1 or weights.min(initial=1) != 1:
-                pos, bits = np.repeat(pos, weights, axis=0), np.repeat(bits, weights, axis=0)
-            if len(pos) == 0:
-                continue
-            part = Chunk(setup, pos, bits)
-            for acc in accumulators:
-                acc.add(part)
+        fill(accumulators, setup, progress(chunks) if progress else chunks)
     for acc in accumulators:
         acc.finish()
     return _dataset(setup, accumulators, counts, method)
+
+
+def fill(accumulators, setup, chunks) -> None:
+    """Hand every chunk of records (setting positions, outcomes, counts) to every accumulator, one row per shot."""
+    for pos, bits, weights in chunks:
+        if weights.max(initial=1) != 1 or weights.min(initial=1) != 1:
+            pos, bits = np.repeat(pos, weights, axis=0), np.repeat(bits, weights, axis=0)
+        if len(pos) == 0:
+            continue
+        part = Chunk(setup, pos, bits)
+        for acc in accumulators:
+            acc.add(part)
 
 
 def _setup(shadow, model, subsystems, calibration, n_blocks, chunk):

@@ -13,8 +13,6 @@ an accumulator that keeps other attributes in ``add`` must define it.
 
 from __future__ import annotations
 
-import numpy as np
-
 from manybody.errors import InputError
 
 #: records per part (a few chunks each, so that every worker stays busy)
@@ -40,7 +38,7 @@ def record_parts(n_records: int, part: int = PART_RECORDS) -> list[tuple[int, in
 
 def fill_part(setup, build, start: int, stop: int, chunk: int, source=None):
     """Accumulators filled with records start..stop (``source``: a shadow file to open here, for workers)."""
-    from manybody.estimation.setup import Chunk
+    from manybody.estimation.driver import fill
 
     shadow = setup.shadow
     if source is not None:
@@ -51,13 +49,7 @@ def fill_part(setup, build, start: int, stop: int, chunk: int, source=None):
     part = shadow.with_records(shadow.record_setting[start:stop], shadow.outcomes[start:stop],
                                shadow.counts[start:stop])
     accumulators = build(setup)
-    for pos, bits, weights in part.chunks(chunk):
-        if weights.max(initial=1) != 1 or weights.min(initial=1) != 1:
-            pos, bits = np.repeat(pos, weights, axis=0), np.repeat(bits, weights, axis=0)
-        if len(pos):
-            piece = Chunk(setup, pos, bits)
-            for acc in accumulators:
-                acc.add(piece)
+    fill(accumulators, setup, part.chunks(chunk))
     return accumulators
 
 
