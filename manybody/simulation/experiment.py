@@ -10,12 +10,18 @@ only their metadata tells simulated from measured data.
 
 Seeds: one SeedSequence per run, spawned into the settings draw and one
 child per time point, each spawned again per chunk of settings, so the
-same seed gives bit-identical files.
+same seed gives bit-identical files. Because every chunk owns its random
+stream, chunks are drawn by a pool of threads (numpy releases the GIL in
+the matrix products) and handed on in order: the files do not depend on
+the number of workers.
 """
 
 from __future__ import annotations
 
 import os
+from collections import deque
+from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
 from dataclasses import replace
 
 import numpy as np
@@ -27,11 +33,13 @@ from manybody.measure.ensembles import make_ensemble
 from manybody.measure.prepare import coupling_of, fresh_seed
 from manybody.references import exact
 from manybody.simulation.noise import Noise
-from manybody.simulation.sampling import sample_dense, sample_mps
+from manybody.simulation.sampling import mps_site_tensors, sample_dense, sample_mps
 
 #: the dense backend is the default up to this many qubits.
 DENSE_MAX_QUBITS = 14
 SETTINGS_PER_CHUNK = 2048
+#: chunks drawn ahead of the consumer, per worker (bounds the memory of a parallel run)
+CHUNKS_IN_FLIGHT = 2
 NAMED_STATES = ("ground", "neel", "zero", "one", "plus", "minus")
 
 
@@ -100,7 +108,8 @@ def output_paths(output: str, times) -> list[str]:
 
 def simulate_shadows(model, state, n_snapshots: int | None = None, ensemble_kind: str = "local", depth: int = 0,
                      shots: int = 1, times=None, noise: Noise = Noise(), backend: str = "auto",
-                     bond_dim: int = 128, seed: int | None = None, settings=None, progress=None):
+                     bond_dim: int = 128, seed: int | None = None, settings=None, progress=None,
+                     workers: int | None = None):
     """Simulated randomized measurements of a state, one shadow per time: yields (header, record chunks).
 
     The header is a Shadow without records (ensemble, settings, label and
@@ -108,12 +117,17 @@ def simulate_shadows(model, state, n_snapshots: int | None = None, ensemble_kind
     produced lazily so that a writer can stream them. ``settings`` (drawn
     beforehand, with their ensemble) replaces the draw. Seeds: one
     SeedSequence per run, spawned into the settings draw and one child per
-    time, each spawned again per chunk of settings.
+    time, each spawned again per chunk of settings. ``workers`` threads draw
+    chunks (default: the number of cores; 1: one after the other); the
+    records are the same for every number of workers.
     """
     shots = int(shots)
     if shots < 1 or (n_snapshots is not None and n_snapshots < 1):
         raise InputError("snapshots and shots must be at least 1", argument="snapshots")
     backend = choose_backend(model, backend)
+    workers = default_workers() if workers is None else int(workers)
+    if workers < 1:
+        raise InputError(f"workers must be at least 1, got {workers}", argument="workers")
     seed = fresh_seed() if seed is None else int(seed)
     root = np.random.SeedSequence(seed)
     settings_seed, *time_seeds = root.spawn(1 + (1 if times is None else len(times)))
@@ -135,26 +149,91 @@ def simulate_shadows(model, state, n_snapshots: int | None = None, ensemble_kind
             meta["bond_dim"] = bond_dim
         label = {} if t is None else {"time": t}
         yield replace(header, label=label, metadata=meta), _records(psi, ens, drawn, shots, n_snapshots, noise,
-                                                                   backend, bond_dim, tseed, meta, progress)
+                                                                   backend, bond_dim, tseed, meta, progress,
+                                                                   workers)
 
 
-def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, seed, meta, progress):
-    """Record chunks (ids, bits, counts) of one state; the largest MPS discarded weight goes into ``meta``."""
+def default_workers() -> int:
+    """The number of cores this process may run on."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on every platform
+        return os.cpu_count() or 1
+
+
+@contextmanager
+def single_threaded_blas():
+    """BLAS on one thread inside (our threads share the cores instead), if threadpoolctl is installed.
+
+    Several threads calling a multithreaded OpenBLAS on small matrices wait on
+    each other's thread pool and run slower than one thread alone.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:
+        yield
+        return
+    with threadpool_limits(limits=1, user_api="blas"):
+        yield
+
+
+def ordered_map(fn, items, workers: int):
+    """fn(item) for every item, yielded in order; ``workers`` threads, a bounded number of results ahead.
+
+    With one worker this is the plain serial loop. At most CHUNKS_IN_FLIGHT
+    x workers results are pending, so memory stays flat however many items.
+    """
+    if workers <= 1:
+        yield from map(fn, items)
+        return
+    items = iter(items)
+    with single_threaded_blas(), ThreadPoolExecutor(max_workers=workers) as pool:
+        # range first in zip: it stops without taking one item too many from ``items``
+        pending = deque(pool.submit(fn, item) for _, item in zip(range(CHUNKS_IN_FLIGHT * workers), items))
+        try:
+            while pending:
+                result = pending.popleft().result()
+                for item in items:  # refill one slot
+                    pending.append(pool.submit(fn, item))
+                    break
+                yield result
+        finally:  # the consumer stopped early or an error: drop what has not started
+            for future in pending:
+                future.cancel()
+
+
+def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, seed, meta, progress, workers=1):
+    """Record chunks (ids, bits, counts) of one state; the largest MPS discarded weight goes into ``meta``.
+
+    Chunk j draws from its own generator (child j of ``seed``), whichever
+    thread runs it, so the records do not depend on ``workers``.
+    """
     n_settings = len(settings)
     chunk_seeds = seed.spawn(-(-n_settings // SETTINGS_PER_CHUNK))
-    written = 0
     starts = range(0, n_settings, SETTINGS_PER_CHUNK)
-    for start, cseed in zip(progress(starts) if progress else starts, chunk_seeds):
+    if backend == "mps":
+        psi = mps_site_tensors(psi)  # canonical form once, shared read-only by the threads
+    if not ens.is_local:
+        from manybody.measure.clifford import clifford_table
+
+        clifford_table(2)  # build the cached gate table before the threads need it
+
+    def draw(job):
+        start, cseed = job
         rng = np.random.default_rng(cseed)
         part = settings.take(slice(start, start + SETTINGS_PER_CHUNK))
+        lost = 0.0
         if backend == "dense":
             bits = sample_dense(psi, ens, part, shots, rng)
         else:
             bits, lost = sample_mps(psi, ens, part, shots, rng, max_bond=bond_dim)
-            if not ens.is_local:
-                meta["discarded_weight"] = max(meta.get("discarded_weight", 0.0), lost)
-        bits = noise.apply(bits, rng)
-        ids = np.repeat(part.ids, shots)
+        return np.repeat(part.ids, shots), noise.apply(bits, rng), lost
+
+    written = 0
+    chunks = ordered_map(draw, zip(starts, chunk_seeds), workers)
+    for _, (ids, bits, lost) in zip(progress(starts) if progress else starts, chunks):
+        if backend == "mps" and not ens.is_local:
+            meta["discarded_weight"] = max(meta.get("discarded_weight", 0.0), lost)
         keep = min(len(ids), n_snapshots - written)
         yield ids[:keep], bits[:keep], np.ones(keep, dtype=np.int64)
         written += keep
@@ -162,10 +241,14 @@ def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, s
 
 def simulate(model, state: str, n_snapshots: int, ensemble_kind: str = "local", depth: int = 0,
              shots: int = 1, times=None, noise: Noise = Noise(), backend: str = "auto", bond_dim: int = 128,
-             seed: int | None = None, output: str = "shadow.nc", progress=None) -> list[str]:
-    """Simulate randomized measurements of a state and write shadow files; returns the paths."""
+             seed: int | None = None, output: str = "shadow.nc", progress=None,
+             workers: int | None = None) -> list[str]:
+    """Simulate randomized measurements of a state and write shadow files; returns the paths.
+
+    ``workers``: threads drawing chunks of settings (default: the number of cores).
+    """
     runs = simulate_shadows(model, state, n_snapshots, ensemble_kind, depth, shots, times, noise, backend,
-                            bond_dim, seed, progress=progress)
+                            bond_dim, seed, progress=progress, workers=workers)
     if times is None:
         _write_runs(runs, [output])
         return [output]

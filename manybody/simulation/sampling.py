@@ -284,21 +284,23 @@ def apply_setting_mps(tensors, ensemble, settings: Settings, k: int, max_bond: i
 
 def sample_mps(mps, ensemble, settings: Settings, shots: int, rng, max_bond: int = 128,
                progress=None, chunk: int = 4096):
-    """Outcome bits (K * shots, n) from an MPS; returns (bits, largest discarded weight)."""
+    """Outcome bits (K * shots, n) from an MPS; returns (bits, largest discarded weight).
+
+    ``mps`` is a quimb MPS or its right-canonical site tensors (:func:`mps_site_tensors`, a list).
+    """
     n = ensemble.n_qubits
     k = len(settings)
     out = np.empty((k * shots, n), dtype=np.uint8)
     if ensemble.kind == "global":
         raise ValueError("the global ensemble needs the dense backend")
     discarded = 0.0
+    tensors = mps if isinstance(mps, list) else mps_site_tensors(mps)
     if ensemble.is_local:
-        tensors = mps_site_tensors(mps)
         rows = np.repeat(settings.basis, shots, axis=0)
         starts = range(0, len(rows), chunk)
         for start in (progress(starts) if progress else starts):
             out[start:start + chunk] = sample_mps_bases(tensors, rows[start:start + chunk], rng)
         return out, discarded
-    tensors = mps_site_tensors(mps)
     indices = range(k)
     for j in (progress(indices) if progress else indices):
         rotated, lost = apply_setting_mps(tensors, ensemble, settings, j, max_bond)
