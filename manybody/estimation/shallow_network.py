@@ -201,3 +201,199 @@ def weighted_rms_residual(lam, g, weight: float = 0.5) -> float:
     for q in range(len(lam)):
         env_q, env_l = _grow_left(env_q, env_l, g[q], quad[q], lin[q])
     return float(np.sqrt(max(env_q.item() - 2 * env_l.item() + 1.0, 0.0)))
+
+
+def residual_patterns(n: int, rng) -> tuple[np.ndarray, bool]:
+    """Support patterns on which max |r| is checked, and whether they are all 2^n of them.
+
+    Up to EXHAUSTIVE_QUBITS qubits: every pattern. Beyond: SAMPLED_PATTERNS
+    uniform random patterns plus every pattern of weight <= 2 or >= n - 2
+    (few-body Paulis, and the nearly full supports where 1/lambda is largest).
+    """
+    if n <= EXHAUSTIVE_QUBITS:
+        return ((np.arange(2**n)[:, None] >> np.arange(n - 1, -1, -1)) & 1).astype(bool), True
+    low = [np.zeros((1, n), dtype=bool), np.eye(n, dtype=bool)]
+    pairs = np.array(list(itertools.combinations(range(n), 2)))
+    two = np.zeros((len(pairs), n), dtype=bool)
+    two[np.arange(len(pairs))[:, None], pairs] = True
+    low.append(two)
+    low = np.concatenate(low)
+    return np.concatenate([low, ~low, rng.random((SAMPLED_PATTERNS, n)) < 0.5]), False
+
+
+@dataclass(frozen=True, eq=False)
+class ShallowInverse:
+    """A fitted inverse g ~ 1/lambda of a shallow ensemble and its residual r = lambda g - 1.
+
+    eigenvalues, inverse : MPS tensors (l, 2, r) of lambda and g over the support bits.
+    rms_residual : sqrt(sum_s w(s) r(s)^2), exact by contraction (rounding floor about 1e-7).
+    max_residual : max |r| over the checked patterns; ``exhaustive`` says whether these
+    were all 2^n patterns (then it bounds |E[f] - F| rigorously) or a sample (an estimate).
+    """
+
+    eigenvalues: list
+    inverse: list
+    bond: int
+    weight: float
+    rms_residual: float
+    max_residual: float
+    exhaustive: bool
+    checked_patterns: int
+
+    @property
+    def bias_bound(self) -> float:
+        """|E[f] - F| <= max_s |r(s)| (module docstring)."""
+        return self.max_residual
+
+
+def shallow_inverse(ensemble, bond: int = 8, weight: float = 0.5, sweeps: int = 6, seed: int = 0) -> ShallowInverse:
+    """The fitted inverse of ``ensemble`` (cached per ensemble and options): see :func:`fit_inverse`."""
+    cache = _INVERSES.setdefault(ensemble, {})
+    key = (bond, weight, sweeps, seed)
+    if key not in cache:
+        lam = eigenvalue_mps(ensemble)
+        g = fit_inverse(lam, bond, weight, sweeps)
+        patterns, exhaustive = residual_patterns(ensemble.n_qubits, np.random.default_rng(seed))
+        worst = 0.0
+        for start in range(0, len(patterns), 1 << 16):
+            part = patterns[start:start + (1 << 16)]
+            worst = max(worst, float(np.max(np.abs(mps_values(lam, part) * mps_values(g, part) - 1.0))))
+        cache[key] = ShallowInverse(lam, g, bond, weight, weighted_rms_residual(lam, g, weight), worst,
+                                    exhaustive, len(patterns))
+    return cache[key]
+
+
+# ----------------------------------------------------------------- 3. snapshots
+#: one-qubit Pauli codes (0 I, 1 X, 2 Z, 3 Y) of R^dag X R for each measured basis R (X: H, Y: H S^dag, Z: I)
+_PAULI_MATRICES = np.array([np.eye(2), [[0, 1], [1, 0]], [[1, 0], [0, -1]], [[0, -1j], [1j, 0]]])
+
+
+def _rotated_x_codes() -> np.ndarray:
+    conj = np.einsum("bji,jk,bkl->bil", BASIS_ROTATIONS.conj(), _PAULI_MATRICES[1], BASIS_ROTATIONS)
+    overlap = np.abs(np.einsum("pij,bji->bp", _PAULI_MATRICES, conj))
+    return np.argmax(overlap, axis=1).astype(np.uint8)
+
+
+def flip_generators(ensemble, settings) -> np.ndarray:
+    """Pauli codes of U^dag X_j U (signs dropped) for every setting and qubit j: (K, n, n) [setting, j, qubit].
+
+    U = R C (gates C, then the basis rotations R), so X_j is first taken back
+    through R (a table per basis) and then through the gate slots in reverse
+    order, C^dag Q C from the inverse of the Clifford table's conjugation map.
+    """
+    n, k = ensemble.n_qubits, len(settings)
+    codes = np.zeros((k, n, n), dtype=np.uint8)
+    codes[:, np.arange(n), np.arange(n)] = _rotated_x_codes()[settings.basis]
+    if settings.gates is not None and settings.gates.shape[1]:
+        inverse = np.argsort(clifford_table(2).conj_code, axis=1).astype(np.uint8)
+        for slot in range(len(ensemble.gate_qubits) - 1, -1, -1):
+            a, b = ensemble.gate_qubits[slot]
+            new = inverse[settings.gates[:, slot, None], codes[..., a] + 4 * codes[..., b]]
+            codes[..., a], codes[..., b] = new & 3, new >> 2
+    return codes
+
+
+def setting_states(ensemble, settings) -> list[np.ndarray]:
+    """MPS of U^dag|0...0> for every setting, batched: n tensors (K, l, 2, r).
+
+    Start from the product of R_q^dag|0> and apply the adjoint gates in
+    reverse time order; each two-site block is split by a batched SVD that
+    keeps the largest rank any setting of the batch needs (exact, zero-padded).
+    """
+    k, n = len(settings), ensemble.n_qubits
+    tensors = [BASIS_ROTATIONS.conj()[settings.basis[:, q], 0, :].reshape(k, 1, 2, 1) for q in range(n)]
+    unitaries = clifford_table(2).unitaries
+    slots = np.asarray(ensemble.gate_qubits).tolist()
+    for slot in range(len(slots) - 1, -1, -1):
+        a, b = slots[slot]
+        u = unitaries[settings.gates[:, slot]].conj().transpose(0, 2, 1).reshape(k, 2, 2, 2, 2)
+        if a > b:
+            a, b, u = b, a, u.transpose(0, 2, 1, 4, 3)
+        theta = np.einsum("kisj,kjtl->kistl", tensors[a], tensors[b])
+        theta = np.einsum("kpqst,kistl->kipql", u, theta)
+        l, r = theta.shape[1], theta.shape[4]
+        uu, ss, vh = np.linalg.svd(theta.reshape(k, 2 * l, 2 * r), full_matrices=False)
+        ss = np.where(ss > EXACT_CUTOFF * ss[:, :1], ss, 0.0)
+        keep = max(1, int(np.max(np.sum(ss > 0, axis=1))))
+        tensors[a] = uu[:, :, :keep].reshape(k, l, 2, keep)
+        tensors[b] = (ss[:, :keep, None] * vh[:, :keep]).reshape(k, keep, 2, r)
+    return tensors
+
+
+def inverse_mpo(phi: list[np.ndarray], g: list[np.ndarray]) -> list[np.ndarray]:
+    """O = G(|phi><phi|) per setting: n tensors (K, B_l, column, row, B_r), B = chi_phi^2 D.
+
+    Per qubit G_q(X) = g1 X + (g0 - g1) tr(X) I/2 (module docstring), with
+    X[row, column] = phi[c, row, C] phi[c', column, C']^* the site piece of
+    |phi><phi|; the bond is the triple (c, c', k) of phi, phi^* and g.
+    The column (ket) index comes first, as it meets the target's ket.
+    """
+    out = []
+    for a, gq in zip(phi, g):
+        k, l, _, r = a.shape
+        keep = np.einsum("kcsC,kdtD,xX->kcdxtsCDX", a, a.conj(), gq[:, 1, :])
+        traced = np.einsum("kcuC,kduD->kcdCD", a, a.conj())
+        keep += np.einsum("kcdCD,xX,st->kcdxstCDX", traced, 0.5 * (gq[:, 0, :] - gq[:, 1, :]), np.eye(2))
+        out.append(keep.reshape(k, l * l * gq.shape[0], 2, 2, r * r * gq.shape[2]))
+    return out
+
+
+def _sandwich(kets, mpo, which, flip_x, flip_z) -> np.ndarray:
+    """<psi| P O_k P |psi> for every snapshot (P = X^x Z^z per qubit, O_k its setting's MPO): (S,).
+
+    The environments E[s, beta, a', a] of all snapshots advance together:
+    one matrix product with the target's ket tensor, the snapshot's Pauli
+    (a sign and a swap of the physical index), a batched product with the
+    setting's MPO tensor, the Pauli again and one product with the bra.
+    The Pauli's phase (Y = i X Z) cancels between ket and bra.
+    """
+    count = len(which)
+    env = np.ones((count, 1, 1, 1), dtype=complex)
+    sign = 1 - 2 * flip_z.astype(np.int8)
+    for q, ket in enumerate(kets):
+        _, bond, left, _ = env.shape
+        right = ket.shape[2]
+        t = (env.reshape(-1, left) @ ket.reshape(left, -1)).reshape(count, bond, left, 2, right)
+        t[:, :, :, 1] *= sign[:, q, None, None, None]
+        t = np.where(flip_x[:, q, None, None, None, None], t[:, :, :, ::-1], t)
+        t = t.transpose(0, 2, 4, 1, 3).reshape(count, left * right, bond * 2)
+        o = mpo[q][which]
+        t = np.matmul(t, o.reshape(count, bond * 2, -1)).reshape(count, left, right, 2, o.shape[-1])
+        t = np.where(flip_x[:, q, None, None, None, None], t[:, :, :, ::-1], t)
+        t[:, :, :, 1] *= sign[:, q, None, None, None]
+        t = t.transpose(0, 4, 2, 1, 3).reshape(-1, left * 2) @ ket.conj().reshape(left * 2, right)
+        env = t.reshape(count, o.shape[-1], right, right).transpose(0, 1, 3, 2)
+    return env.reshape(count).real
+
+
+def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, setting_index, bits,
+                         chunk: int = 128) -> np.ndarray:
+    """f_i = <psi| G(U_i^dag|b_i><b_i|U_i) |psi> for shallow snapshots and an MPS target: (N,).
+
+    ``inverse`` from :func:`shallow_inverse` (g ~ 1/lambda, bias at most
+    ``inverse.bias_bound``); ``target`` a quimb MPS or (left, right, physical)
+    right-canonical tensors; ``setting_index`` (N,) positions in ``settings``;
+    ``bits`` (N, n). Snapshots are taken setting by setting in chunks of about
+    ``chunk``: per distinct setting U^dag|0> and its MPO O = G(U^dag|0><0|U)
+    are built once, per snapshot only P_b = U^dag X^b U (XOR of the flip
+    generators selected by b) and the sweep of :func:`_sandwich`.
+    """
+    tensors = target if isinstance(target, (list, tuple)) else mps_site_tensors(target)
+    n = ensemble.n_qubits
+    if len(tensors) != n:
+        raise InputError(f"the target MPS has {len(tensors)} sites but the snapshots have {n} qubits")
+    kets = [np.ascontiguousarray(np.asarray(a, dtype=complex).transpose(0, 2, 1)) for a in tensors]
+    setting_index = np.asarray(setting_index, dtype=np.int64)
+    bits = np.asarray(bits, dtype=np.int64)
+    order = np.argsort(setting_index, kind="stable")
+    out = np.empty(len(setting_index))
+    for start in range(0, len(order), chunk):
+        rows = order[start:start + chunk]
+        distinct, which = np.unique(setting_index[rows], return_inverse=True)
+        sub = settings.take(distinct)
+        mpo = inverse_mpo(setting_states(ensemble, sub), inverse.inverse)
+        gen = flip_generators(ensemble, sub)[which]  # (S, j, qubit)
+        flip_x = np.einsum("sj,sjq->sq", bits[rows], (gen & 1).astype(np.int64)) & 1
+        flip_z = np.einsum("sj,sjq->sq", bits[rows], (gen >> 1).astype(np.int64)) & 1
+        out[rows] = _sandwich(kets, mpo, which, flip_x.astype(bool), flip_z)
+    return out
