@@ -189,21 +189,22 @@ def sample_mps_bases(tensors, basis_rows: np.ndarray, rng) -> np.ndarray:
     count, n = basis_rows.shape
     out = np.empty((count, n), dtype=np.uint8)
     v = np.ones((count, 1), dtype=complex)
+    every = np.arange(count)
     for q, a in enumerate(tensors):
         chi_l, chi_r, _ = a.shape
         w = np.empty((count, 2, chi_r), dtype=complex)
         for code in range(3):
-            sel = basis_rows[:, q] == code
-            if not sel.any():
+            sel = np.flatnonzero(basis_rows[:, q] == code)
+            if len(sel) == 0:
                 continue
             rotated = np.einsum("ij,lrj->lir", BASIS_ROTATIONS[code], a).reshape(chi_l, 2 * chi_r)
             w[sel] = (v[sel] @ rotated).reshape(-1, 2, chi_r)
-        weight = np.einsum("sbr,sbr->sb", w, w.conj()).real
+        parts = w.view(np.float64)  # real and imaginary parts side by side: |W|^2 without a conjugate copy
+        weight = np.einsum("sbr,sbr->sb", parts, parts)
         p1 = weight[:, 1] / weight.sum(axis=1)
         bit = (rng.random(count) < p1).astype(np.uint8)
         out[:, q] = bit
-        v = w[np.arange(count), bit]
-        v /= np.linalg.norm(v, axis=1, keepdims=True)
+        v = w[every, bit] / np.sqrt(weight[every, bit])[:, None]  # |W[s, b_s]|^2 is the drawn weight
     return out
 
 
