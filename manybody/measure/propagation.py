@@ -182,11 +182,18 @@ def _pack_windows(sites, win, n: int):
     z = np.zeros_like(x)
     codes = win.transpose(2, 1, 0)  # (w, F, K)
     for j, column in enumerate(sites.T):  # one window position of every factor at a time
-        word = np.where(column < 0, 0, column // 64)
         shift = np.where(column < 0, 0, column % 64).astype(np.uint64)[:, None]
-        rows = np.arange(len(column))
-        x[word, rows] |= (codes[j] & 1).astype(np.uint64) << shift  # padding carries code 0
-        z[word, rows] |= (codes[j] >> 1).astype(np.uint64) << shift
+        xbit = (codes[j] & 1).astype(np.uint64) << shift  # padding carries code 0: no bit
+        zbit = (codes[j] >> 1).astype(np.uint64) << shift
+        if words == 1:
+            x[0] |= xbit
+            z[0] |= zbit
+            continue
+        word = np.where(column < 0, 0, column // 64)
+        for w in np.unique(word):
+            rows = word == w
+            x[w, rows] |= xbit[rows]
+            z[w, rows] |= zbit[rows]
     return x, z
 
 
