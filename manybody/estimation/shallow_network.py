@@ -320,68 +320,104 @@ def setting_states(ensemble, settings) -> list[np.ndarray]:
     return tensors
 
 
-def inverse_mpo(phi: list[np.ndarray], g: list[np.ndarray]) -> list[np.ndarray]:
-    """O = G(|phi><phi|) per setting: n tensors (K, B_l, column, row, B_r), B = chi_phi^2 D.
+def compress_states(tensors) -> tuple[list[np.ndarray], np.ndarray]:
+    """Right-to-left SVD sweep of batched MPS (K, l, 2, r); returns the tensors and the rank per setting and cut.
 
-    Per qubit G_q(X) = g1 X + (g0 - g1) tr(X) I/2 (module docstring), with
-    X[row, column] = phi[c, row, C] phi[c', column, C']^* the site piece of
-    |phi><phi|; the bond is the triple (c, c', k) of phi, phi^* and g.
-    The column (ket) index comes first, as it meets the target's ket.
+    Singular values below EXACT_CUTOFF of the largest are set to zero, so for
+    setting k only the first ranks[k, q] indices of bond q (between qubits
+    q - 1 and q; ranks[:, 0] = ranks[:, n] = 1) carry weight, and slicing
+    there is exact.
     """
-    out = []
-    for a, gq in zip(phi, g):
-        k, l, _, r = a.shape
-        keep = np.einsum("kcsC,kdtD,xX->kcdxtsCDX", a, a.conj(), gq[:, 1, :])
-        traced = np.einsum("kcuC,kduD->kcdCD", a, a.conj())
-        keep += np.einsum("kcdCD,xX,st->kcdxstCDX", traced, 0.5 * (gq[:, 0, :] - gq[:, 1, :]), np.eye(2))
-        out.append(keep.reshape(k, l * l * gq.shape[0], 2, 2, r * r * gq.shape[2]))
+    tensors = list(tensors)
+    k, n = tensors[0].shape[0], len(tensors)
+    ranks = np.ones((k, n + 1), dtype=np.int64)
+    for q in range(n - 1, 0, -1):
+        _, l, _, r = tensors[q].shape
+        uu, ss, vh = np.linalg.svd(tensors[q].reshape(k, l, 2 * r), full_matrices=False)
+        ss = np.where(ss > EXACT_CUTOFF * ss[:, :1], ss, 0.0)
+        ranks[:, q] = np.maximum(np.sum(ss > 0, axis=1), 1)
+        keep = int(ranks[:, q].max())
+        tensors[q] = vh[:, :keep].reshape(k, keep, 2, r)
+        tensors[q - 1] = np.einsum("kisj,kjm->kism", tensors[q - 1], uu[:, :, :keep] * ss[:, None, :keep])
+    return tensors, ranks
+
+
+def _site_step(env, ket, phi, g1, g_trace):
+    """One qubit of <psi| G(|phi><phi|) |psi> for a group of snapshots of equal bonds.
+
+    env[s, c, c', k, a', a] (bonds of phi, phi^*, g, bra, ket) -> the same after
+    the qubit. Keep part: g1 sum psi^*[a', x] phi[c, x] phi^*[c', y] psi[a, y];
+    trace part: (g0 - g1)/2 sum_x psi^*[a', x] psi[a, x] sum_u phi[c, u] phi^*[c', u].
+    The target's tensors meet the whole group in one matrix product each.
+    """
+    s, c, c2, k, bra, kt = env.shape
+    right = ket.shape[2]
+    cr = phi.shape[3]
+    x = (env.reshape(-1, kt) @ ket.reshape(kt, -1)).reshape(s, c, c2, k, bra, 2, right)
+    ket_bra = ket.conj().reshape(bra * 2, right)
+    # trace part: close psi with psi^*, phi with phi^*
+    w = (x.transpose(0, 1, 2, 3, 6, 4, 5).reshape(-1, bra * 2) @ ket_bra).reshape(s, c, c2, k, right, right)
+    phi_phi = np.einsum("scuC,sduD->scdCD", phi, phi.conj())
+    traced = np.einsum("scdCD,scdkAB->sCDkAB", phi_phi, w, optimize=True)
+    out = np.einsum("sCDkAB,kK->sCDKBA", traced, g_trace, optimize=True)
+    # keep part: psi's ket meets phi^*, psi^* meets phi
+    y = np.matmul(x.transpose(0, 1, 3, 4, 6, 2, 5).reshape(s, c * k * bra * right, c2 * 2),
+                  phi.conj().reshape(s, c2 * 2, cr))  # [s, (c k a' A), C']
+    y = y.reshape(s, c, k * bra * right * cr).transpose(0, 2, 1)
+    z = np.matmul(y, phi.reshape(s, c, 2 * cr)).reshape(s, k, bra, right, cr, 2, cr)  # [s,k,a',A,C',x,C]
+    z = z.transpose(0, 1, 3, 4, 6, 2, 5).reshape(-1, bra * 2) @ ket_bra  # [s,k,A,C',C,A']
+    out += np.einsum("skACDB,kK->sDCKBA", z.reshape(s, k, right, cr, cr, right), g1, optimize=True)
     return out
 
 
-def _sandwich(kets, mpo, which, flip_x, flip_z) -> np.ndarray:
-    """<psi| P O_k P |psi> for every snapshot (P = X^x Z^z per qubit, O_k its setting's MPO): (S,).
+def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
+    """<psi| G(|phi_i><phi_i|) |psi> for every snapshot i, phi_i = P_i phi_(setting of i): (S,).
 
-    The environments E[s, beta, a', a] of all snapshots advance together:
-    one matrix product with the target's ket tensor, the snapshot's Pauli
-    (a sign and a swap of the physical index), a batched product with the
-    setting's MPO tensor, the Pauli again and one product with the bra.
-    The Pauli's phase (Y = i X Z) cancels between ket and bra.
+    Snapshots are grouped, qubit by qubit, by the bonds of their phi on both
+    sides of the qubit, so no work is spent on padding; within a group
+    everything is a batched matrix product. P_i = X^x Z^z per qubit (its
+    phase cancels in |phi><phi|) acts on phi's physical index.
     """
     count = len(which)
-    env = np.ones((count, 1, 1, 1), dtype=complex)
+    snap_rank = ranks[which]
     sign = 1 - 2 * flip_z.astype(np.int8)
+    envs = {1: (np.arange(count), np.ones((count, 1, 1, 1, 1, 1), dtype=complex))}
     for q, ket in enumerate(kets):
-        _, bond, left, _ = env.shape
-        right = ket.shape[2]
-        t = (env.reshape(-1, left) @ ket.reshape(left, -1)).reshape(count, bond, left, 2, right)
-        t[:, :, :, 1] *= sign[:, q, None, None, None]
-        t = np.where(flip_x[:, q, None, None, None, None], t[:, :, :, ::-1], t)
-        t = t.transpose(0, 2, 4, 1, 3).reshape(count, left * right, bond * 2)
-        o = mpo[q][which]
-        t = np.matmul(t, o.reshape(count, bond * 2, -1)).reshape(count, left, right, 2, o.shape[-1])
-        t = np.where(flip_x[:, q, None, None, None, None], t[:, :, :, ::-1], t)
-        t[:, :, :, 1] *= sign[:, q, None, None, None]
-        t = t.transpose(0, 4, 2, 1, 3).reshape(-1, left * 2) @ ket.conj().reshape(left * 2, right)
-        env = t.reshape(count, o.shape[-1], right, right).transpose(0, 1, 3, 2)
-    return env.reshape(count).real
+        g1, g_trace = g[q][:, 1, :], 0.5 * (g[q][:, 0, :] - g[q][:, 1, :])
+        parts: dict = {}
+        for left, (rows, env) in envs.items():
+            right_of = snap_rank[rows, q + 1]
+            for right in np.unique(right_of):
+                sel = right_of == right
+                r_sel = rows[sel]
+                f = phi[q][which[r_sel], :left, :, :right].copy()
+                f[:, :, 1] *= sign[r_sel, q, None, None]
+                f = np.where(flip_x[r_sel, q, None, None, None], f[:, :, ::-1], f)
+                parts.setdefault(int(right), []).append((r_sel, _site_step(env[sel], ket, f, g1, g_trace)))
+        envs = {r: (np.concatenate([p[0] for p in ps]), np.concatenate([p[1] for p in ps])) for r, ps in parts.items()}
+    rows, env = envs[1]
+    out = np.empty(count)
+    out[rows] = env.reshape(len(rows)).real
+    return out
 
 
 def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, setting_index, bits,
-                         chunk: int = 128) -> np.ndarray:
+                         chunk: int = 256) -> np.ndarray:
     """f_i = <psi| G(U_i^dag|b_i><b_i|U_i) |psi> for shallow snapshots and an MPS target: (N,).
 
     ``inverse`` from :func:`shallow_inverse` (g ~ 1/lambda, bias at most
     ``inverse.bias_bound``); ``target`` a quimb MPS or (left, right, physical)
     right-canonical tensors; ``setting_index`` (N,) positions in ``settings``;
     ``bits`` (N, n). Snapshots are taken setting by setting in chunks of about
-    ``chunk``: per distinct setting U^dag|0> and its MPO O = G(U^dag|0><0|U)
-    are built once, per snapshot only P_b = U^dag X^b U (XOR of the flip
-    generators selected by b) and the sweep of :func:`_sandwich`.
+    ``chunk``: per distinct setting U^dag|0> is built once, per snapshot only
+    P_b = U^dag X^b U (XOR of the flip generators selected by b) and the
+    sweep of :func:`_sandwich`.
     """
     tensors = target if isinstance(target, (list, tuple)) else mps_site_tensors(target)
     n = ensemble.n_qubits
     if len(tensors) != n:
         raise InputError(f"the target MPS has {len(tensors)} sites but the snapshots have {n} qubits")
+    _neighbour_gates(ensemble)
     kets = [np.ascontiguousarray(np.asarray(a, dtype=complex).transpose(0, 2, 1)) for a in tensors]
     setting_index = np.asarray(setting_index, dtype=np.int64)
     bits = np.asarray(bits, dtype=np.int64)
@@ -391,9 +427,9 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
         rows = order[start:start + chunk]
         distinct, which = np.unique(setting_index[rows], return_inverse=True)
         sub = settings.take(distinct)
-        mpo = inverse_mpo(setting_states(ensemble, sub), inverse.inverse)
+        phi, ranks = compress_states(setting_states(ensemble, sub))
         gen = flip_generators(ensemble, sub)[which]  # (S, j, qubit)
         flip_x = np.einsum("sj,sjq->sq", bits[rows], (gen & 1).astype(np.int64)) & 1
         flip_z = np.einsum("sj,sjq->sq", bits[rows], (gen >> 1).astype(np.int64)) & 1
-        out[rows] = _sandwich(kets, mpo, which, flip_x.astype(bool), flip_z)
+        out[rows] = _sandwich(kets, phi, ranks, inverse.inverse, which, flip_x.astype(bool), flip_z)
     return out
