@@ -342,32 +342,23 @@ def compress_states(tensors) -> tuple[list[np.ndarray], np.ndarray]:
     return tensors, ranks
 
 
-def _site_step(env, ket, phi, g1, g_trace):
+def _site_step(env, ket, phi, g_pair):
     """One qubit of <psi| G(|phi><phi|) |psi> for a group of snapshots of equal bonds.
 
-    env[s, c, c', k, a', a] (bonds of phi, phi^*, g, bra, ket) -> the same after
+    env[s, k, c, c', a', a] (bonds of g, phi, phi^*, bra, ket) -> the same after
     the qubit. Keep part: g1 sum psi^*[a', x] phi[c, x] phi^*[c', y] psi[a, y];
     trace part: (g0 - g1)/2 sum_x psi^*[a', x] psi[a, x] sum_u phi[c, u] phi^*[c', u].
-    The target's tensors meet the whole group in one matrix product each.
+    Both parts are gathered before the bra, so the target's tensors meet the
+    group in two matrix products (ket, bra); ``g_pair`` is (g1^T; (g0 - g1)^T / 2).
     """
-    s, c, c2, k, bra, kt = env.shape
-    right = ket.shape[2]
-    cr = phi.shape[3]
-    x = (env.reshape(-1, kt) @ ket.reshape(kt, -1)).reshape(s, c, c2, k, bra, 2, right)
-    ket_bra = ket.conj().reshape(bra * 2, right)
-    # trace part: close psi with psi^*, phi with phi^*
-    w = (x.transpose(0, 1, 2, 3, 6, 4, 5).reshape(-1, bra * 2) @ ket_bra).reshape(s, c, c2, k, right, right)
-    phi_phi = np.einsum("scuC,sduD->scdCD", phi, phi.conj())
-    traced = np.einsum("scdCD,scdkAB->sCDkAB", phi_phi, w, optimize=True)
-    out = np.einsum("sCDkAB,kK->sCDKBA", traced, g_trace, optimize=True)
-    # keep part: psi's ket meets phi^*, psi^* meets phi
-    y = np.matmul(x.transpose(0, 1, 3, 4, 6, 2, 5).reshape(s, c * k * bra * right, c2 * 2),
-                  phi.conj().reshape(s, c2 * 2, cr))  # [s, (c k a' A), C']
-    y = y.reshape(s, c, k * bra * right * cr).transpose(0, 2, 1)
-    z = np.matmul(y, phi.reshape(s, c, 2 * cr)).reshape(s, k, bra, right, cr, 2, cr)  # [s,k,a',A,C',x,C]
-    z = z.transpose(0, 1, 3, 4, 6, 2, 5).reshape(-1, bra * 2) @ ket_bra  # [s,k,A,C',C,A']
-    out += np.einsum("skACDB,kK->sDCKBA", z.reshape(s, k, right, cr, cr, right), g1, optimize=True)
-    return out
+    s, _, c, c2, bra, kt = env.shape
+    right, cr, d = ket.shape[2], phi.shape[3], g_pair.shape[0] // 2
+    x = (env.reshape(-1, kt) @ ket.reshape(kt, -1)).reshape(s, -1, c * c2 * bra * 2 * right)
+    x = np.matmul(g_pair, x).reshape(s, 2, d, c, c2, bra, 2, right)  # g bond moved across the qubit
+    pre = np.einsum("sKcdayA,sdyD,scxC->sKCDaxA", x[:, 0], phi.conj(), phi, optimize=True)
+    pre += np.einsum("sKcdaxA,scuC,sduD->sKCDaxA", x[:, 1], phi, phi.conj(), optimize=True)
+    out = np.matmul(ket.conj().reshape(bra * 2, right).T, pre.reshape(-1, bra * 2, right))
+    return out.reshape(s, d, cr, cr, right, right)
 
 
 def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
@@ -383,7 +374,7 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
     sign = 1 - 2 * flip_z.astype(np.int8)
     envs = {1: (np.arange(count), np.ones((count, 1, 1, 1, 1, 1), dtype=complex))}
     for q, ket in enumerate(kets):
-        g1, g_trace = g[q][:, 1, :], 0.5 * (g[q][:, 0, :] - g[q][:, 1, :])
+        g_pair = np.concatenate([g[q][:, 1, :].T, 0.5 * (g[q][:, 0, :] - g[q][:, 1, :]).T]).astype(complex)
         parts: dict = {}
         for left, (rows, env) in envs.items():
             right_of = snap_rank[rows, q + 1]
@@ -393,7 +384,7 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
                 f = phi[q][which[r_sel], :left, :, :right].copy()
                 f[:, :, 1] *= sign[r_sel, q, None, None]
                 f = np.where(flip_x[r_sel, q, None, None, None], f[:, :, ::-1], f)
-                parts.setdefault(int(right), []).append((r_sel, _site_step(env[sel], ket, f, g1, g_trace)))
+                parts.setdefault(int(right), []).append((r_sel, _site_step(env[sel], ket, f, g_pair)))
         envs = {r: (np.concatenate([p[0] for p in ps]), np.concatenate([p[1] for p in ps])) for r, ps in parts.items()}
     rows, env = envs[1]
     out = np.empty(count)
