@@ -16,6 +16,7 @@ from manybody import __version__
 from manybody.errors import InputError
 from manybody.estimation.accumulators import ACCUMULATORS, DEFAULT_QUANTITIES
 from manybody.estimation.errorbars import METHODS
+from manybody.estimation.parallel import fill_parts
 from manybody.estimation.setup import Chunk, Eigenvalues, Setup, Subsystem, parse_subsystems
 from manybody.schema import site_coords
 
@@ -30,48 +31,64 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
     ``quantities`` are names of :data:`manybody.estimation.accumulators.ACCUMULATORS`;
     ``correlations=False`` keeps the magnetization but skips the pair maps;
     ``options`` are handed to every accumulator's ``build`` (for example a target state);
-    ``scheduler`` ("threads", "sync", a cluster address or a dask.distributed Client)
-    fills the accumulators part by part with dask (:mod:`manybody.estimation.parallel`).
+    ``scheduler`` (None: threads when more than one core is available; "threads", "sync",
+    a cluster address or a dask.distributed Client) runs the parts of the records
+    (:mod:`manybody.estimation.parallel`); the results do not depend on it.
+    ``chunk``: snapshots per chunk handed to the accumulators.
     """
     if method not in METHODS:
         raise InputError(f"unknown error-bar method {method!r}; allowed: {', '.join(METHODS)}", argument="errors")
-    setup, counts = _setup(shadow, model, subsystems, calibration, n_blocks, chunk)
+    setup, counts = _setup(shadow, model, subsystems, calibration, n_blocks)
     options = {"correlations": correlations, "mutual_information": mutual_information, **(options or {})}
-    if scheduler is not None:
-        from manybody.estimation.parallel import fill_parallel
-
-        names = quantities
-        accumulators = fill_parallel(setup, lambda s: _accumulators(s, names, options), chunk, scheduler)
-    else:
-        accumulators = _accumulators(setup, quantities, options)
-        chunks = shadow.chunks(chunk)
-        fill(accumulators, setup, progress(chunks) if progress else chunks)
+    accumulators = fill_parts(setup, lambda s: _accumulators(s, quantities, options), chunk, scheduler, progress)
     for acc in accumulators:
         acc.finish()
     return _dataset(setup, accumulators, counts, method)
 
 
-def fill(accumulators, setup, chunks) -> None:
-    """Hand every chunk of records (setting positions, outcomes, counts) to every accumulator, one row per shot."""
+def fill(accumulators, setup, chunks, size: int = 8192) -> None:
+    """Hand the snapshots of every read (setting positions, outcomes, counts) to every accumulator, one row per
+    shot, in chunks of at most ``size`` snapshots."""
     for pos, bits, weights in chunks:
-        if weights.max(initial=1) != 1 or weights.min(initial=1) != 1:
-            pos, bits = np.repeat(pos, weights, axis=0), np.repeat(bits, weights, axis=0)
-        if len(pos) == 0:
-            continue
-        part = Chunk(setup, pos, bits)
-        for acc in accumulators:
-            acc.add(part)
+        for part_pos, part_bits in shot_pieces(pos, bits, weights, size):
+            part = Chunk(setup, part_pos, part_bits)
+            for acc in accumulators:
+                acc.add(part)
 
 
-def _setup(shadow, model, subsystems, calibration, n_blocks, chunk):
-    """The Setup, and the per-block snapshot counts n and n2 (sum of squared shots per setting)."""
+def shot_pieces(pos, bits, weights, size: int):
+    """Records (positions, outcomes, counts) as pieces of at most ``size`` rows, record r repeated counts[r] times.
+
+    A record with more shots than ``size`` is cut across pieces (only its
+    repetitions are ever in memory, ``size`` at a time).
+    """
+    weights = np.asarray(weights, dtype=np.int64)
+    if len(weights) and weights.min() == 1 and weights.max() == 1:  # one shot per record: slices
+        for a in range(0, len(weights), size):
+            yield pos[a:a + size], bits[a:a + size]
+        return
+    ends = np.cumsum(weights)
+    starts = ends - weights
+    total = int(ends[-1]) if len(ends) else 0
+    for a in range(0, total, size):
+        b = min(a + size, total)
+        first, last = np.searchsorted(ends, a, side="right"), np.searchsorted(starts, b, side="left")
+        reps = np.minimum(ends[first:last], b) - np.maximum(starts[first:last], a)
+        yield np.repeat(pos[first:last], reps), np.repeat(bits[first:last], reps, axis=0)
+
+
+def _setup(shadow, model, subsystems, calibration, n_blocks, read: int = 1 << 20):
+    """The Setup, and the per-block snapshot counts n and n2 (sum of squared shots per setting).
+
+    One pass over the setting ids and counts of the records (``read`` at a time), not their outcomes.
+    """
     n = shadow.ensemble.n_qubits
     if model is not None and model.n_qubits != n:
         raise InputError(f"the model has {model.n_qubits} qubits but the shadow has {n}", argument="model")
     qubit_site = np.asarray(shadow.qubit_site if model is None else model.qubit_site)
     k = len(shadow.settings)
     per_setting = np.zeros(k)
-    for pos, _, weights in shadow.chunks(chunk):
+    for pos, _, weights in shadow.chunks(read, outcomes=False):
         per_setting += np.bincount(pos, weights=weights, minlength=k)
     active = np.flatnonzero(per_setting)
     if len(active) < 2:

@@ -12,6 +12,11 @@ with E = sum_P c_P o(P) the energy estimate. Only near pairs appear; the
 anticommuting ones cancel in pairs (PQ = -QP), the commuting ones give
 PQ = +-R with R a Pauli string. The cost grows like the number of near
 pairs, not like the square of the Hamiltonian.
+
+Local ensemble: a two-site product R = sigma^x_a sigma^y_b has o(R) =
+o(sigma^x_a) o(sigma^y_b), so the sum of all of them is a bilinear form in
+the one-site values, f W f^T per snapshot with W sparse (3n x 3n): no
+(snapshots x products) table is built for them.
 """
 
 from __future__ import annotations
@@ -22,6 +27,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from hamiltonians.pauli import product_phase
+from manybody.measure.paulis import AXIS_OF_CODE, BASIS_PAULI
 
 
 @dataclass(frozen=True)
@@ -33,6 +39,9 @@ class SquareTerms:
     weights: np.ndarray  # (U,) sum of c_P c_Q (+-1) over the pairs with product R
     lam: np.ndarray  # (U,) eigenvalue of each R
     constant: float  # sum of c_P c_Q (+-1) over the pairs whose product is the identity
+    singles: np.ndarray | None = None  # local ensemble: (3n, n) the one-site strings, index axis * n + qubit
+    singles_lam: np.ndarray | None = None  # (3n,) their eigenvalues
+    bilinear: sp.csr_matrix | None = None  # (3n, 3n) weights of the two-site products (not in ``codes``)
 
 
 def cones(codes: np.ndarray, ensemble) -> np.ndarray:
@@ -65,7 +74,27 @@ def square_terms(codes: np.ndarray, coeffs: np.ndarray, ensemble, eigenvalue) ->
     distinct, inverse = np.unique(products[~identity], axis=0, return_inverse=True)
     weights = np.bincount(inverse.ravel(), weights=weight[~identity], minlength=len(distinct))
     lam = np.array([eigenvalue(c) for c in distinct])
-    return SquareTerms(near, distinct, weights, lam, float(weight[identity].sum()))
+    square = SquareTerms(near, distinct, weights, lam, float(weight[identity].sum()))
+    return _two_site_bilinear(square, eigenvalue) if ensemble.is_local else square
+
+
+def _two_site_bilinear(square: SquareTerms, eigenvalue) -> SquareTerms:
+    """Move the two-site products whose eigenvalue is the product of their one-site ones into a bilinear form."""
+    n = square.codes.shape[1]
+    singles = np.zeros((3 * n, n), dtype=np.uint8)
+    singles[np.arange(3 * n), np.tile(np.arange(n), 3)] = np.repeat(BASIS_PAULI, n)
+    singles_lam = np.array([eigenvalue(c) for c in singles])
+    two = np.flatnonzero(np.count_nonzero(square.codes, axis=1) == 2)
+    sites = np.sort(np.nonzero(square.codes[two])[1].reshape(-1, 2), axis=1)
+    index = AXIS_OF_CODE[np.take_along_axis(square.codes[two], sites, axis=1)] * n + sites  # (pairs, 2)
+    factorizes = np.isclose(square.lam[two], singles_lam[index[:, 0]] * singles_lam[index[:, 1]], rtol=1e-12)
+    two, index = two[factorizes], index[factorizes]
+    if not len(two):
+        return square
+    bilinear = sp.csr_matrix((square.weights[two], (index[:, 0], index[:, 1])), shape=(3 * n, 3 * n))
+    rest = np.setdiff1d(np.arange(len(square.codes)), two)
+    return SquareTerms(square.near, square.codes[rest], square.weights[rest], square.lam[rest], square.constant,
+                       singles, singles_lam, bilinear)
 
 
 def square_values(values: np.ndarray, energy: np.ndarray, square: SquareTerms, product_values) -> np.ndarray:
@@ -73,6 +102,10 @@ def square_values(values: np.ndarray, energy: np.ndarray, square: SquareTerms, p
 
     ``product_values(codes, lam) -> (N, U)`` gives the single-snapshot estimates of the strings R.
     """
-    factorized = np.einsum("st,st->s", np.asarray(square.near.T @ values.T).T, values)
+    rows = np.ascontiguousarray(values.T, dtype=np.float64)  # (T, N): sparse products and sums run along rows
+    factorized = np.sum(np.asarray(square.near.T @ rows) * rows, axis=0)
     explicit = product_values(square.codes, square.lam) @ square.weights if len(square.codes) else 0.0
+    if square.bilinear is not None:  # sum over the two-site products of w f_a f_b
+        f = np.ascontiguousarray(product_values(square.singles, square.singles_lam).T, dtype=np.float64)  # (3n, N)
+        explicit = explicit + np.sum(np.asarray(square.bilinear @ f) * f, axis=0)
     return energy**2 - factorized + explicit + square.constant

@@ -34,15 +34,18 @@ def local_products(columns: np.ndarray, supports: np.ndarray, axes: np.ndarray) 
 
     Terms of one weight at a time: ``supports`` and ``axes`` are (T, w).
     On disjoint sites the local estimator factorizes exactly (lambda_P is a
-    product over sites and so is the snapshot value).
+    product over sites and so is the snapshot value). The gathers run on the
+    transposed columns (whole rows copied) and the result is their transpose
+    (a Fortran-ordered view), since gathering columns of a C-ordered array is
+    several times slower.
     """
-    flat = columns.reshape(len(columns), -1)
     n = columns.shape[2]
+    rows = np.ascontiguousarray(columns.reshape(len(columns), -1).T)  # (3n, N)
     idx = axes * n + supports
-    out = flat[:, idx[:, 0]].copy()
+    out = rows[idx[:, 0]]
     for k in range(1, idx.shape[1]):
-        out *= flat[:, idx[:, k]]
-    return out
+        out *= rows[idx[:, k]]
+    return out.T
 
 
 # --------------------------------------------------------------- purity

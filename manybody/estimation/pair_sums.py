@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from manybody.estimation.kernels import pair_count_sum, site_factor_matrix
+from manybody.estimation.kernels import pair_count_sum
 
 
 def outcome_within(hists, setting_block, n_blocks, k, inv):
@@ -107,14 +107,33 @@ def mi_purities_paulis(s, n, near_pairs, pairs):
     return out
 
 
-def mi_purities(s, n, inv, pairs, multi):
-    """Purities of every single site (diagonal) and site pair from the one-hot word histogram."""
-    h = s["mi_hist"].reshape(n, 6, n, 6)
-    f = np.array([site_factor_matrix(inv[q]) for q in range(n)])  # (n, 6, 6)
-    g = np.einsum("auv,avbw,bwx->aubx", f, h, f)
-    pair_sum = np.einsum("aubx,aubx->ab", g, h)
-    # diagonal blocks: H[a, u, a, u'] is diagonal, so the single-site sum is h_a F h_a
-    single = np.einsum("au,auv,av->a", np.einsum("auau->au", h), f, np.einsum("auau->au", h))
+def mi_pair_sums(s, n):
+    """sum over all ordered pairs (i, j), i = j included, of tr(rho_i rho_j) on every site pair and site (diagonal).
+
+    Local ensemble, from Pauli vectors (docs/design.md section 4): per site
+    tr(rho_i rho_j) = (1/2) sum_P v_i(P) v_j(P) over P in {I, X, Y, Z}, v(I) = 1,
+    v(sigma^x) = [basis = x] (-1)^b / lambda (the one-site columns; with
+    lambda = 1/3 the factors 5, -4, 1/2 of Elben et al., PRL 120, 050406 (2018)).
+    So the sum over pairs is (1/4) |V|^2 on two sites and (1/2) |V|^2 on one,
+    with V(P) = sum_i v_i(P): N for the identity, the column sums M ("mi_mag")
+    and their Gram sums C ("mi_corr"):
+        (N^2 + sum_x M_xa^2 + sum_y M_yb^2 + sum_xy C_xa,yb^2) / 4,   (N^2 + sum_x M_xa^2) / 2.
+    """
+    count = s["n"]
+    m2 = np.sum(s["mi_mag"].reshape(3, n) ** 2, axis=0)
+    corr = s["mi_corr"].reshape(3, n, 3, n)
+    out = (count**2 + m2[:, None] + m2[None, :] + np.einsum("xayb,xayb->ab", corr, corr)) / 4
+    out[np.diag_indices(n)] = (count**2 + m2) / 2
+    return out
+
+
+def mi_purities(s, n, inv, pairs):
+    """Purities of every single site (diagonal) and site pair: all pairs of snapshots minus those within a setting.
+
+    The within-setting sums are the i = j terms, tr(rho_i^2) = prod over the sites of (1 + 1/lambda^2)/2,
+    or with several shots per setting the per-setting sums ``mi_within``.
+    """
+    total = mi_pair_sums(s, n)
     diag_each = (1 + inv**2) / 2
     if "mi_within" in s:  # several shots per setting
         within_pair = s["mi_within"]
@@ -122,10 +141,8 @@ def mi_purities(s, n, inv, pairs, multi):
     else:  # one shot per setting: only i = j pairs
         within_pair = s["n"] * np.outer(diag_each, diag_each)
         within_single = s["n"] * diag_each
-    purity_pair = (pair_sum - within_pair) / pairs
-    purity_single = (single - within_single) / pairs
-    out = purity_pair.copy()
-    out[np.diag_indices(n)] = purity_single
+    out = (total - within_pair) / pairs
+    out[np.diag_indices(n)] = (np.diagonal(total) - within_single) / pairs
     return out
 
 

@@ -1,10 +1,16 @@
-"""Estimation with dask: the records split into parts, accumulators filled per part, their sums added.
+"""The chunked pass in parts: records split into parts, accumulators filled per part, their sums added in order.
 
 Every accumulator is a reduction over chunks of snapshots (docs/design.md
 section 9): per-block sums and per-setting sums simply add, so a part of the
-records can be read and accumulated anywhere, by a thread or by a worker of
-a dask.distributed cluster, and the parts merged in a fixed order. The
-results equal the serial ones up to the order of floating-point additions.
+records can be read and accumulated anywhere — in this thread, by a pool of
+threads on this machine, or by a worker of a dask.distributed cluster — and
+the parts merged in record order. Every scheduler cuts the records into the
+same parts, fills each with BLAS on one thread and merges them in the same
+order, so the results do not depend on the scheduler (nor on the number of
+threads): they are the same numbers, bit for bit, on one machine.
+
+At most a few parts per worker are in flight, so memory stays flat however
+many records the shadow holds.
 
 Accumulators with state beyond their sums (purities kept per setting or per
 pair of snapshots, counts of visible strings) add it in ``merge_state(other)``;
@@ -13,10 +19,19 @@ an accumulator that keeps other attributes in ``add`` must define it.
 
 from __future__ import annotations
 
+import os
+from collections import deque
+from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
+
 from manybody.errors import InputError
 
 #: records per part (a few chunks each, so that every worker stays busy)
 PART_RECORDS = 1 << 17
+#: parts in flight per worker: results waiting to be merged in order, the bound on memory
+PARTS_IN_FLIGHT = 2
+#: names of the local schedulers: a pool of threads on this machine, or this thread alone
+THREADS, SERIAL = ("threads",), ("sync", "synchronous", "serial")
 
 
 def merge(acc, other) -> None:
@@ -36,6 +51,31 @@ def record_parts(n_records: int, part: int = PART_RECORDS) -> list[tuple[int, in
     return [(start, min(start + part, n_records)) for start in range(0, n_records, part)]
 
 
+def available_cores() -> int:
+    """The number of cores this process may run on."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on every platform
+        return os.cpu_count() or 1
+
+
+@contextmanager
+def single_threaded_blas():
+    """BLAS on one thread inside (the parts share the cores instead), when threadpoolctl is installed.
+
+    Several threads calling a multithreaded OpenBLAS on chunk-sized matrices wait
+    on each other's thread pools (and on a busy machine, on everyone's): one
+    BLAS thread per part is faster, and gives the same sums whoever runs it.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:
+        yield
+        return
+    with threadpool_limits(limits=1, user_api="blas"):
+        yield
+
+
 def fill_part(setup, build, start: int, stop: int, chunk: int, source=None):
     """Accumulators filled with records start..stop (``source``: a shadow file to open here, for workers)."""
     from manybody.estimation.driver import fill
@@ -46,64 +86,133 @@ def fill_part(setup, build, start: int, stop: int, chunk: int, source=None):
 
         shadow = read_shadow(source, kinds=(SHADOW_KIND,))
         setup = setup.with_shadow(shadow)
-    part = shadow.with_records(shadow.record_setting[start:stop], shadow.outcomes[start:stop],
-                               shadow.counts[start:stop])
     accumulators = build(setup)
-    fill(accumulators, setup, part.chunks(chunk))
+    with single_threaded_blas():  # nested inside the caller's limit: no change; on a cluster worker: the limit
+        fill(accumulators, setup, shadow.chunks(stop - start, start, stop), chunk)
     return accumulators
 
 
-def fill_parallel(setup, build, chunk: int, scheduler):
-    """Accumulators of all records, filled part by part by dask (``scheduler``: "threads", "sync", an address
-    such as "tcp://host:8786", or a dask.distributed Client)."""
-    try:
-        import dask
-    except ImportError:
-        raise InputError("scheduler: dask is not installed; pip install 'manybody[dask]'",
-                         argument="scheduler") from None
-    shadow = setup.shadow
-    client, compute = _scheduler(scheduler)
-    distributed = client is not None
-    source = getattr(shadow, "origin", "") or None
-    if distributed and source is None:
-        raise InputError("scheduler: a cluster reads the shadow from its file; write it first (Shadow.to_netcdf)",
-                         argument="scheduler")
-    lite = setup.with_shadow(None) if distributed else setup
-    tasks = [dask.delayed(fill_part)(lite, build, a, b, chunk, source if distributed else None)
-             for a, b in record_parts(shadow.n_records)]
-    parts = compute(tasks)
-    merged = parts[0]
-    for other in parts[1:]:
-        for acc, more in zip(merged, other):
+def fill_parts(setup, build, chunk: int, scheduler=None, progress=None):
+    """Accumulators of all records, filled part by part and merged in record order.
+
+    ``scheduler``: None (threads when this process may use more than one core,
+    else this thread), "threads", "sync", an address such as "tcp://host:8786",
+    or a dask.distributed Client. ``progress`` wraps the sequence of parts.
+    """
+    parts = record_parts(setup.shadow.n_records)
+    results = _run(setup, build, chunk, scheduler, parts)
+    merged = None
+    for accumulators in (progress(_Sized(results, len(parts))) if progress else results):
+        if merged is None:
+            merged = accumulators
+            continue
+        for acc, more in zip(merged, accumulators):
             merge(acc, more)
+    if merged is None:  # no records at all
+        merged = build(setup)
     for acc in merged:
         acc.setup = setup
     return merged
 
 
-def _scheduler(scheduler):
-    """(client or None, a function computing a list of delayed tasks in order)."""
-    import dask
+class _Sized:
+    """An iterator that knows its length (for a progress bar)."""
 
-    if isinstance(scheduler, str) and scheduler in ("threads", "sync", "synchronous", "processes"):
-        if scheduler == "processes":
-            raise InputError("scheduler: 'processes' is not supported; use 'threads' or a dask.distributed "
-                             "cluster address", argument="scheduler")
-        return None, lambda tasks: list(dask.compute(*tasks, scheduler=scheduler))
+    def __init__(self, items, size):
+        self.items, self.size = items, size
+
+    def __iter__(self):
+        return iter(self.items)
+
+    def __len__(self):
+        return self.size
+
+
+def _run(setup, build, chunk, scheduler, parts):
+    """The filled accumulators of every part, in order (a generator)."""
+    if scheduler is None:
+        workers = min(available_cores(), len(parts))
+    elif isinstance(scheduler, str) and scheduler in SERIAL:
+        workers = 1
+    elif isinstance(scheduler, str) and scheduler in THREADS:
+        workers = available_cores()
+    elif isinstance(scheduler, str) and scheduler == "processes":
+        raise InputError("scheduler: 'processes' is not supported; use 'threads' or a dask.distributed "
+                         "cluster address", argument="scheduler")
+    else:
+        client = _client(scheduler)
+        source = getattr(setup.shadow, "origin", "") or None
+        if source is None:
+            raise InputError("scheduler: a cluster reads the shadow from its file; write it first "
+                             "(Shadow.to_netcdf)", argument="scheduler")
+        return _run_cluster(setup.with_shadow(None), build, chunk, client, source, parts)
+
+    def one(part):
+        return fill_part(setup, build, part[0], part[1], chunk)
+
+    return _ordered_map(one, parts, workers)
+
+
+def _ordered_map(fn, items, workers: int):
+    """fn(item) for every item, yielded in order; ``workers`` threads with a bounded number of results ahead."""
+    with single_threaded_blas():
+        if workers <= 1:
+            for item in items:
+                yield fn(item)
+            return
+        items = iter(items)
+        with ThreadPoolExecutor(max_workers=workers) as pool:
+            # range first in zip: it stops without taking one item too many from ``items``
+            pending = deque(pool.submit(fn, item) for _, item in zip(range(PARTS_IN_FLIGHT * workers), items))
+            try:
+                while pending:
+                    result = pending.popleft().result()
+                    for item in items:  # refill one slot
+                        pending.append(pool.submit(fn, item))
+                        break
+                    yield result
+            finally:  # an error or an early stop: drop what has not started
+                for future in pending:
+                    future.cancel()
+
+
+def _run_cluster(lite, build, chunk, client, source, parts):
+    """As :func:`_ordered_map`, on the workers of a dask.distributed cluster, which read the shadow ``source``."""
+    window = PARTS_IN_FLIGHT * max(1, len(client.scheduler_info().get("workers", {})))
+    items = iter(parts)
+
+    def submit(part):
+        return client.submit(fill_part, lite, build, part[0], part[1], chunk, source, pure=False)
+
+    pending = deque(submit(part) for _, part in zip(range(window), items))
+    try:
+        while pending:
+            result = pending.popleft().result()
+            for part in items:
+                pending.append(submit(part))
+                break
+            yield result
+    finally:
+        for future in pending:
+            future.cancel()
+
+
+def _client(scheduler):
+    """A dask.distributed Client for a Client or a cluster address; InputError otherwise."""
+    if isinstance(scheduler, str) and "://" not in scheduler:
+        raise InputError(f"scheduler {scheduler!r}: allowed: threads, sync, or a cluster address such as "
+                         "tcp://host:8786", argument="scheduler")
     try:
         from dask.distributed import Client
     except ImportError:
         raise InputError("scheduler: a cluster needs dask.distributed; pip install 'manybody[dask]'",
                          argument="scheduler") from None
     if isinstance(scheduler, Client):
-        client = scheduler
-    elif isinstance(scheduler, str) and "://" in scheduler:
-        try:
-            client = Client(scheduler, timeout=30)
-        except OSError as exc:
-            raise InputError(f"scheduler {scheduler}: cannot reach the cluster ({exc})", argument="scheduler") \
-                from None
-    else:
+        return scheduler
+    if not isinstance(scheduler, str):
         raise InputError(f"scheduler {scheduler!r}: allowed: threads, sync, or a cluster address such as "
                          "tcp://host:8786", argument="scheduler")
-    return client, lambda tasks: client.gather(client.compute(tasks))
+    try:
+        return Client(scheduler, timeout=30)
+    except OSError as exc:
+        raise InputError(f"scheduler {scheduler}: cannot reach the cluster ({exc})", argument="scheduler") from None

@@ -105,16 +105,21 @@ class Shadow:
             raise InputError(f"{self.origin or 'the shadow'}: variable {name} cannot be read at records {start} to "
                              f"{min(start + size, self.n_records) - 1}; the file is damaged ({reason})") from None
 
-    def _checked(self, size: int, outcomes: bool = True):
-        """(setting ids, positions in ``settings``, outcomes or None, counts) per chunk, ids and counts checked."""
+    def _checked(self, size: int, outcomes: bool = True, start: int = 0, stop: int | None = None):
+        """(setting ids, positions in ``settings``, outcomes or None, counts) per chunk, ids and counts checked.
+
+        Records ``start`` to ``stop`` (default: all); messages number records from the start of the file.
+        """
         lookup = check.RecordCheck(self.settings.ids, self.origin)
-        for start in range(0, self.n_records, size):
-            ids = self._read(self.record_setting, start, size, "record_setting")
-            positions = lookup.positions(ids, start)
-            counts = lookup.counts(self._read(self.counts, start, size, "count"), start)
+        stop = self.n_records if stop is None else min(stop, self.n_records)
+        for first in range(start, stop, size):
+            step = min(size, stop - first)
+            ids = self._read(self.record_setting, first, step, "record_setting")
+            positions = lookup.positions(ids, first)
+            counts = lookup.counts(self._read(self.counts, first, step, "count"), first)
             bits = None
             if outcomes:
-                bits = self._read(self.outcomes, start, size, "outcome").astype(np.uint8, copy=False)
+                bits = self._read(self.outcomes, first, step, "outcome").astype(np.uint8, copy=False)
                 if self.packed:
                     bits = unpack_outcomes(bits, self.n_qubits)
             yield ids.astype(np.int64, copy=False), positions, bits, counts
@@ -124,13 +129,15 @@ class Shadow:
         for ids, _, bits, counts in self._checked(size):
             yield ids, bits, counts
 
-    def chunks(self, size: int = 1 << 16):
+    def chunks(self, size: int = 1 << 16, start: int = 0, stop: int | None = None, outcomes: bool = True):
         """Yield (setting positions in ``settings``, outcomes, counts), ``size`` records at a time.
 
-        Raises InputError at the first record whose setting is not in the
-        settings or whose count is negative or above 10^15 - 1.
+        Records ``start`` to ``stop`` (default: all); ``outcomes=False`` yields
+        None for the outcomes and does not read them. Raises InputError at the
+        first record whose setting is not in the settings or whose count is
+        negative or above 10^15 - 1.
         """
-        for _, positions, bits, counts in self._checked(size):
+        for _, positions, bits, counts in self._checked(size, outcomes, start, stop):
             yield positions, bits, counts
 
     def snapshots(self) -> tuple[np.ndarray, np.ndarray]:

@@ -53,3 +53,45 @@ def test_local_cluster_of_two_workers_gives_the_serial_results(tmp_path, small_p
                                   dashboard_address=None) as cluster, distributed.Client(cluster) as client:
         clustered = estimate(shadow, model, quantities=quantities, scheduler=client)
     assert largest_difference(serial, clustered) < 1e-12
+
+
+def test_every_scheduler_gives_the_same_numbers(small_parts):
+    # The parts, the BLAS threads and the order of merging do not depend on the scheduler: the
+    # default (threads on more than one core), 'threads' and 'sync' give identical datasets.
+    model = tfim_model(N)
+    _, psi = exact.ground_state(model.hamiltonian)
+    shadow = make_shadow(psi, LocalEnsemble(N), 10000, seed=8)
+    subsystems = parse_subsystems("0-1;2-5", N)
+    results = [estimate(shadow, model, subsystems, chunk=1500, scheduler=s) for s in (None, "threads", "sync")]
+    for other in results[1:]:
+        assert largest_difference(results[0], other) == 0.0
+
+
+def test_records_with_counts_give_the_results_of_one_row_per_shot(small_parts):
+    # The same snapshots written once per shot and as (distinct outcome, count) records of each
+    # setting: every quantity agrees to rounding, also when a record has more shots than a chunk.
+    model = tfim_model(N)
+    _, psi = exact.ground_state(model.hamiltonian)
+    shadow = make_shadow(psi, LocalEnsemble(N), 100, shots=40, seed=9)
+    key = shadow.record_setting * 2**N + shadow.outcomes @ (2 ** np.arange(N))
+    distinct, first, counts = np.unique(key, return_index=True, return_counts=True)
+    grouped = shadow.with_records(shadow.record_setting[first], shadow.outcomes[first], counts)
+    assert counts.max() > 6
+    subsystems = parse_subsystems("0-2", N)
+    rows = estimate(shadow, model, subsystems, chunk=6)
+    records = estimate(grouped, model, subsystems, chunk=6)
+    assert largest_difference(rows, records) < 1e-12
+
+
+def test_shot_pieces_repeat_every_record_its_count():
+    # Plain arithmetic: the pieces, concatenated, are np.repeat of the records; none is longer than asked.
+    from manybody.estimation.driver import shot_pieces
+
+    rng = np.random.default_rng(1)
+    pos, counts = np.arange(30), rng.integers(0, 9, 30)
+    counts[4] = 40  # more shots than a piece
+    bits = rng.integers(0, 2, (30, 3), dtype=np.uint8)
+    pieces = list(shot_pieces(pos, bits, counts, 7))
+    assert max(len(p) for p, _ in pieces) <= 7
+    assert np.array_equal(np.concatenate([p for p, _ in pieces]), np.repeat(pos, counts))
+    assert np.array_equal(np.concatenate([b for _, b in pieces]), np.repeat(bits, counts, axis=0))

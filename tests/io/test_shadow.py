@@ -101,3 +101,25 @@ def test_atomic_path_leaves_nothing_on_failure(tmp_path):
     with atomic_path(target) as tmp:
         open(tmp, "w").write("new")
     assert target.read_text() == "new" and os.listdir(tmp_path) == ["out.txt"]
+
+
+def test_a_range_of_records_and_the_counts_without_outcomes(tmp_path):
+    # Parts of the records read on their own: the same records as the whole file, sliced; a bad record
+    # is reported by its number in the file, not in the part.
+    path = tmp_path / "s.nc"
+    shadow = make_shadow(LocalEnsemble(5), records=100)
+    write_shadow(shadow, path)
+    back = read_shadow(path)
+    part = list(back.chunks(size=16, start=30, stop=75))
+    assert [len(c[0]) for c in part] == [16, 16, 13]
+    assert np.array_equal(np.concatenate([c[1] for c in part]), shadow.outcomes[30:75])
+    assert np.array_equal(np.concatenate([c[2] for c in part]), shadow.counts[30:75])
+    light = list(back.chunks(size=64, outcomes=False))
+    assert all(c[1] is None for c in light)
+    assert np.array_equal(np.concatenate([c[0] for c in light]), shadow.record_setting)
+    bad = tmp_path / "bad.nc"
+    write_shadow(shadow, bad)
+    with h5py.File(bad, "a") as f:
+        f["record_setting"][52] = 77  # no such setting
+    with pytest.raises(InputError, match="setting 77 at record 52"):
+        list(read_shadow(bad).chunks(size=16, start=40, stop=60))
