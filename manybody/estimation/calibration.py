@@ -9,10 +9,12 @@ shallow circuits one value per support pattern. The noise is assumed the
 same in the calibration and in the experiment, and symmetric enough to be
 twirled into a Pauli-diagonal channel (e.g. equal flip probabilities).
 
-The calibration is a finite sample too: ``log_lambda_covariance`` gives the
-delete-one-block jackknife covariance of ln lambda_q (blocks of whole
-calibration settings), which the accumulators propagate into their error
-bars by the delta method (docs/design.md section 5).
+The calibration is a finite sample too: ``log_lambda_deviations`` gives the
+delete-one-block jackknife deviations of ln lambda_S (blocks of whole
+calibration settings) for the supports an estimate divides by (single qubits
+for the local ensemble, every support used for circuits), which the
+accumulators propagate into their error bars by the delta method
+(docs/design.md section 5).
 """
 
 from __future__ import annotations
@@ -36,6 +38,7 @@ class Calibration:
         self.positions, self.bits = shadow.snapshots()
         self.settings = shadow.settings
         self._cache: dict[bytes, float] = {}
+        self._deviations: dict[bytes, np.ndarray] = {}
         self.lambda_local = self.inv_local = None
         if self.ensemble.is_local:  # one factor per qubit (independent readout errors)
             n = self.ensemble.n_qubits
@@ -55,27 +58,37 @@ class Calibration:
             self._cache[key] = value
         return self._cache[key]
 
-    def log_lambda_covariance(self, n_blocks: int = 20) -> np.ndarray:
-        """Local ensemble: (n, n) jackknife covariance of ln lambda_q over blocks of calibration settings."""
-        if getattr(self, "_log_cov", None) is not None:
-            return self._log_cov
-        n = self.ensemble.n_qubits
-        values = np.empty((len(self.positions), n))
-        for q in range(n):
-            codes = np.zeros(n, dtype=np.uint8)
-            codes[q] = 2
-            values[:, q] = snapshot_values(codes, self.ensemble, self.settings, self.positions, self.bits)
+    def log_lambda_deviations(self, supports, n_blocks: int = 20) -> np.ndarray:
+        """Delete-one-block jackknife deviations of ln lambda_S for support masks (P, n): (B, P).
+
+        Blocks are contiguous runs of whole calibration settings; row b is
+        ln lambda_S without block b minus the mean over b, so that
+        (B - 1)/B D^T D is the jackknife covariance of the ln lambda_S. Local
+        ensemble: single-qubit supports are its parameters (lambda_S is a
+        product); circuit ensembles: one value per support, as estimated.
+        """
+        supports = np.atleast_2d(np.asarray(supports, dtype=bool))
         used, setting = np.unique(self.positions, return_inverse=True)
         b = int(min(n_blocks, len(used)))
-        block = setting * b // len(used)  # contiguous runs of whole settings
-        sums = np.zeros((b, n))
-        np.add.at(sums, block, values)
+        block = setting * b // len(used)
         counts = np.bincount(block, minlength=b).astype(float)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            loo = np.log((sums.sum(0) - sums) / (counts.sum() - counts)[:, None])  # (B, n)
-        d = loo - loo.mean(axis=0)
-        self._log_cov = (b - 1) / b * d.T @ d
-        return self._log_cov
+        out = np.empty((b, len(supports)))
+        for p, mask in enumerate(supports):
+            key = mask.tobytes()
+            if key not in self._deviations:
+                codes = np.where(mask, 2, 0).astype(np.uint8)
+                values = snapshot_values(codes, self.ensemble, self.settings, self.positions, self.bits)
+                sums = np.bincount(block, weights=values, minlength=b)
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    loo = np.log((sums.sum() - sums) / (counts.sum() - counts))
+                self._deviations[key] = loo - loo.mean()
+            out[:, p] = self._deviations[key]
+        return out
+
+    def log_lambda_covariance(self, n_blocks: int = 20) -> np.ndarray:
+        """Local ensemble: (n, n) jackknife covariance of ln lambda_q over blocks of calibration settings."""
+        d = self.log_lambda_deviations(np.eye(self.ensemble.n_qubits, dtype=bool), n_blocks)
+        return (len(d) - 1) / len(d) * d.T @ d
 
     def eigenvalue(self, support) -> float:
         qubits = np.flatnonzero(np.asarray(support))

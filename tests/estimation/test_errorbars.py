@@ -196,3 +196,68 @@ def test_many_shots_favour_the_within_setting_purity():
     for value, sigma in ((full["purity"][0], err["purity"][0]), (full["purity_within"][0], err["purity_within"][0]),
                          (combined["purity"][0], combined_err["purity"][0])):
         assert abs(value - exact_p) < 4 * sigma
+
+
+def _shallow_noisy(n_snap, seed):
+    from manybody.measure.prepare import coupling_of
+    from manybody.simulation.noise import Noise
+
+    model, psi = _tfim_state(4)
+    ens = ShallowEnsemble(4, 1, coupling_of(model))
+    noise = Noise(p01=0.08, p10=0.08)
+    return model, psi, ens, make_shadow(psi, ens, n_snap, seed=seed, noise=noise), noise
+
+
+def test_circuit_calibration_noise_is_the_jackknife_over_calibration_blocks():
+    # Delta method (docs/design.md section 5) against its definition: a large experiment (its own
+    # scatter negligible) with a small calibration, so that the error bar is the calibration's.
+    # The brute force rebuilds the calibration without each of its 20 blocks of settings and
+    # re-estimates; the delete-one-block jackknife variance of those estimates (Efron & Tibshirani,
+    # An Introduction to the Bootstrap (1993), ch. 11) must match the reported error within 10%
+    # (the delta method is first order in the calibration's scatter; 400 snapshots keep it small).
+    from manybody.estimation.calibration import Calibration
+
+    model, _, ens, data, noise = _shallow_noisy(40000, seed=1)
+    cal_shadow = make_shadow(exact.product_state("0000"), ens, 400, seed=2, noise=noise)
+    quantities = ("energy", "correlations")
+    robust = estimate(data, model, [], calibration=Calibration(cal_shadow), quantities=quantities,
+                      mutual_information=False)
+    blocks = np.arange(400) * 20 // 400
+    loo = []
+    for b in range(20):
+        keep = blocks != b
+        part = cal_shadow.with_records(cal_shadow.record_setting[keep], cal_shadow.outcomes[keep],
+                                       cal_shadow.counts[keep])
+        loo.append(estimate(data, model, [], calibration=Calibration(part), quantities=quantities,
+                            mutual_information=False))
+    for var, idx in (("energy", ()), ("correlation", (2, 2, 1, 2)), ("correlation", (0, 0, 0, 3)),
+                     ("magnetization", (0, 1))):
+        values = np.array([r[var].values[idx] for r in loo])
+        brute = np.sqrt(19 / 20 * np.sum((values - values.mean()) ** 2))
+        assert float(robust[var + "_err"].values[idx]) == pytest.approx(brute, rel=0.10), var
+
+
+@pytest.mark.slow
+def test_circuit_calibration_coverage():
+    # Robust shallow shadows (Chen, Yu, Zeng, Flammia, PRX Quantum 2, 030348 (2021)), calibration as
+    # large as the experiment: 200 repetitions, each estimate within two error bars 90-98.5% of the
+    # time (the acceptance window of this project, no external source), widened by 2.5 binomial
+    # sigmas (common practice, no source). Without the calibration's noise the energy reached 0.855.
+    from manybody.estimation.calibration import Calibration
+    from manybody.references.dataset import reference_dataset
+
+    model, psi, ens, _, noise = _shallow_noisy(10, seed=0)
+    ref = reference_dataset(model, psi, [])
+    picks = (("energy", ()), ("correlation", (2, 2, 1, 2)), ("correlation", (0, 0, 0, 1)),
+             ("correlation", (2, 2, 0, 3)), ("magnetization", (0, 1)))
+    hits = np.zeros((200, len(picks)), dtype=bool)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        for r in range(200):
+            cal = Calibration(make_shadow(exact.product_state("0000"), ens, 2000, seed=10001 + 2 * r, noise=noise))
+            res = estimate(_shallow_noisy(2000, seed=10000 + 2 * r)[3], model, [], calibration=cal,
+                           mutual_information=False)
+            hits[r] = [abs(res[v].values[i] - ref[v].values[i]) < 2 * res[v + "_err"].values[i] for v, i in picks]
+    slack = 2.5 * np.sqrt(0.9 * 0.1 / 200)
+    for (var, idx), rate in zip(picks, hits.mean(axis=0)):
+        assert 0.90 - slack <= rate <= 0.985 + slack, (var, idx, rate)

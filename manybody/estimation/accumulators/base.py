@@ -50,22 +50,34 @@ class Accumulator:
         raise NotImplementedError
 
     def calibration_gradients(self, full: dict, counts: dict) -> dict:
-        """d estimate / d ln lambda_q (..., n) of the quantities that depend on calibrated eigenvalues."""
+        """d estimate / d ln lambda_S (..., P) for the supports of :meth:`calibration_supports`."""
         return {}
 
-    def add_calibration_noise(self, full: dict, err: dict, counts: dict) -> None:
-        """Robust shadows, local ensemble: err^2 += g^T Cov(ln lambda) g (delta method), intervals widened alike.
+    def calibration_supports(self) -> np.ndarray:
+        """(P, n) bool: the supports whose calibrated eigenvalues the estimates divide by.
 
-        Cov(ln lambda) is the jackknife covariance of the calibration's eigenvalues (docs/design.md section 5).
+        Local ensemble: the single qubits (lambda_S is a product over S);
+        circuit ensembles override this with the supports they use.
         """
-        setup = self.setup
-        if not (setup.calibrated and setup.local):
+        return np.eye(self.setup.n_qubits, dtype=bool)
+
+    def add_calibration_noise(self, full: dict, err: dict, counts: dict) -> None:
+        """Robust shadows: err^2 += g^T Cov(ln lambda) g (delta method), intervals widened alike.
+
+        Cov(ln lambda) is the jackknife covariance of the calibrated eigenvalues of the supports
+        (docs/design.md section 5), applied as sum_b (g . D_b)^2 (B - 1)/B with D the jackknife deviations.
+        """
+        if not self.setup.calibrated:
             return
-        cov = setup.lam.calibrated.log_lambda_covariance()
-        for name, grad in self.calibration_gradients(full, counts).items():
+        grads = self.calibration_gradients(full, counts)
+        if not grads:
+            return
+        dev = self.setup.lam.calibrated.log_lambda_deviations(self.calibration_supports())
+        scale = (len(dev) - 1) / len(dev)
+        for name, grad in grads.items():
             if name not in err:
                 continue
-            extra = np.einsum("...q,qr,...r->...", grad, cov, grad)
+            extra = scale * np.sum(np.einsum("...p,bp->...b", np.nan_to_num(grad), dev) ** 2, axis=-1)
             with np.errstate(invalid="ignore", divide="ignore"):
                 widened = np.sqrt(np.asarray(err[name]) ** 2 + np.maximum(extra, 0.0))
                 if interval_key(name) in err:

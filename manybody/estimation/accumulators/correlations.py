@@ -95,15 +95,43 @@ class Correlations(Accumulator):
                 out["structure_factor"] = structure_factor(corr, self.reciprocal[1])
         return out
 
-    def calibration_gradients(self, full, counts):
-        """Each one-site factor carries 1/lambda_q: d x / d ln lambda_q = -x per qubit of its support."""
+    def calibration_supports(self):
+        """Single qubits, then (circuit ensembles) the near pairs, whose joint eigenvalue the estimates use."""
         n = self.setup.n_qubits
-        eye = np.eye(n)
+        singles = np.eye(n, dtype=bool)
+        if self.setup.local or not self.pairs or not self.near_pairs:
+            return singles
+        pairs = np.zeros((len(self.near_pairs), n), dtype=bool)
+        for j, (a, b) in enumerate(self.near_pairs):
+            pairs[j, [a, b]] = True
+        return np.vstack([singles, pairs])
+
+    def calibration_gradients(self, full, counts):
+        """d x / d ln lambda_S: each estimate carries 1/lambda of its support.
+
+        A one-site value and a product of two (local ensemble, or circuit pairs with separate light
+        cones) carry 1/lambda_a (1/lambda_b); a near pair of a circuit ensemble carries 1/lambda_ab of
+        its own support, while the product <s_a><s_b> in its connected part carries 1/(lambda_a lambda_b).
+        """
+        n = self.setup.n_qubits
+        params = len(self.calibration_supports())
+        eye = np.eye(n, params)
         out = {"magnetization": -full["magnetization"][..., None] * eye[None]}
-        if "correlation" in full:
-            support = eye[:, None, :] + eye[None, :, :]  # (a, b, q)
-            for name in ("correlation", "connected_correlation"):
-                out[name] = -np.nan_to_num(full[name])[..., None] * support
+        if "correlation" not in full:
+            return out
+        corr = np.nan_to_num(full["correlation"])
+        product = corr - np.nan_to_num(full["connected_correlation"])  # <s_a><s_b>, from pairs of settings
+        singles = eye[:, None, :] + eye[None, :, :]  # (a, b, param)
+        own = singles.copy()
+        for j, (a, b) in enumerate(self.near_pairs if params > n else []):
+            own[a, b], own[b, a] = 0.0, 0.0
+            own[a, b, n + j] = own[b, a, n + j] = 1.0
+        out["correlation"] = -corr[..., None] * own
+        out["connected_correlation"] = -corr[..., None] * own + product[..., None] * singles
+        if "structure_factor" in full:
+            same = np.stack([out["correlation"][x, x] for x in range(3)])  # (axis, a, b, param)
+            phase = self.reciprocal[1]
+            out["structure_factor"] = np.real(np.einsum("qa,xabp,qb->xqp", phase, same, phase.conj())) / n
         return out
 
     def variables(self, full, err, data, coords):

@@ -79,7 +79,7 @@ class Energy(Accumulator):
         else:
             self.sums.add("energy_within", chunk.onehot, energy**2)
         self.sums.add("energy_sq_snap", chunk.onehot, energy**2)
-        if self.setup.calibrated and self.setup.local:  # per-term means for the calibration's error
+        if self.setup.calibrated:  # per-term means for the calibration's error
             self.sums.add("terms", chunk.onehot, values)
         if self.squared is not None:
             h2 = square_values(values, energy, self.squared, lambda codes, lam: term_values(codes, lam, chunk))
@@ -99,12 +99,28 @@ class Energy(Accumulator):
             out["energy_variance"] = s["h2"] / count - mean_sq
         return out
 
+    def calibration_supports(self):
+        """Local ensemble: the qubits; circuit ensembles: the distinct supports of the terms."""
+        if self.setup.local:
+            return super().calibration_supports()
+        return np.unique(self.codes != 0, axis=0)
+
     def calibration_gradients(self, full, counts):
-        """d/d ln lambda_q of sum_P c_P <P>: -sum over the terms P acting on q of c_P <P> (and per site)."""
+        """d/d ln lambda_S of sum_P c_P <P>: -c_P <P> summed over the terms P that divide by lambda_S.
+
+        Local ensemble: S runs over single qubits (every term acting on q); circuits: over term supports.
+        The energy variance's calibration noise is not propagated (docs/design.md section 5).
+        """
         if "terms" not in self.sums:
             return {}
         mean = self.sums.data["terms"].sum(axis=0) / counts["n"].sum()  # (T,)
-        support = (self.codes != 0).astype(float)  # (T, n)
+        if self.setup.local:
+            support = (self.codes != 0).astype(float)  # (T, n)
+        else:
+            supports = self.calibration_supports()
+            _, which = np.unique(np.vstack([supports, self.codes != 0]), axis=0, return_inverse=True)
+            which = np.asarray(which).ravel()
+            support = (which[len(supports):, None] == which[None, :len(supports)]).astype(float)  # (T, P)
         return {"energy": -(self.coeffs * mean) @ support,
                 "energy_density": -(self.density * mean[:, None]).T @ support}
 

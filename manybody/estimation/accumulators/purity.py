@@ -182,7 +182,12 @@ class LocalPurity(Purity):
         return out, err
 
     def calibration_gradients(self, full, counts):
-        """d P / d ln lambda_q by central differences of the estimator on the same sums (and of S2 = -ln P)."""
+        """d P / d ln lambda_q by central differences of the estimator on the same sums (and of S2 = -ln P).
+
+        Local ensemble only: circuit purities' calibration noise is not propagated (docs/design.md section 5).
+        """
+        if not self.setup.local:
+            return {}
         hist = [i for i in range(len(self.qubits)) if i not in self.pair_words]
         n = self.setup.n_qubits
         inv0 = self.setup.lam.inv_local(n)
