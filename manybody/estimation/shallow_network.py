@@ -345,20 +345,27 @@ def compress_states(tensors) -> tuple[list[np.ndarray], np.ndarray]:
 def _site_step(env, ket, phi, g_pair):
     """One qubit of <psi| G(|phi><phi|) |psi> for a group of snapshots of equal bonds.
 
-    env[s, k, c, c', a', a] (bonds of g, phi, phi^*, bra, ket) -> the same after
+    env[k, s, c, c', a', a] (bonds of g, phi, phi^*, bra, ket) -> the same after
     the qubit. Keep part: g1 sum psi^*[a', x] phi[c, x] phi^*[c', y] psi[a, y];
     trace part: (g0 - g1)/2 sum_x psi^*[a', x] psi[a, x] sum_u phi[c, u] phi^*[c', u].
-    Both parts are gathered before the bra, so the target's tensors meet the
-    group in two matrix products (ket, bra); ``g_pair`` is (g1^T; (g0 - g1)^T / 2).
+    The target's ket and bra and the g bond are one matrix product each over
+    the whole group; phi enters through a small per-snapshot matrix mapping
+    (c, c', x) to (C, C', x'), applied as a batched product.
+    ``g_pair`` is (g1^T; (g0 - g1)^T / 2), shape (2D, D).
     """
-    s, _, c, c2, bra, kt = env.shape
-    right, cr, d = ket.shape[2], phi.shape[3], g_pair.shape[0] // 2
-    x = (env.reshape(-1, kt) @ ket.reshape(kt, -1)).reshape(s, -1, c * c2 * bra * 2 * right)
-    x = np.matmul(g_pair, x).reshape(s, 2, d, c, c2, bra, 2, right)  # g bond moved across the qubit
-    pre = np.einsum("sKcdayA,sdyD,scxC->sKCDaxA", x[:, 0], phi.conj(), phi, optimize=True)
-    pre += np.einsum("sKcdaxA,scuC,sduD->sKCDaxA", x[:, 1], phi, phi.conj(), optimize=True)
-    out = np.matmul(ket.conj().reshape(bra * 2, right).T, pre.reshape(-1, bra * 2, right))
-    return out.reshape(s, d, cr, cr, right, right)
+    d, s, c, c2, bra, kt = env.shape
+    right, cr = ket.shape[2], phi.shape[3]
+    x = (env.reshape(-1, kt) @ ket.reshape(kt, -1)).reshape(d, s, c, c2, bra, 2, right)
+    x = x.transpose(0, 1, 2, 3, 5, 4, 6).reshape(d, -1)  # [k, s, c, c', y, a', A]
+    x = (g_pair @ x).reshape(2, -1, s, c * c2 * 2, bra * right)
+    keep = np.einsum("scxC,sdyD->sCDxcdy", phi, phi.conj()).reshape(s, cr * cr * 2, c * c2 * 2)
+    both = np.einsum("scuC,sduD->scdCD", phi, phi.conj())
+    trace = np.einsum("scdCD,xy->sCDxcdy", both, np.eye(2)).reshape(s, cr * cr * 2, c * c2 * 2)
+    # a plain einsum loop: numpy's broadcast matmul over (K, s) takes a slow non-BLAS path here
+    pre = np.einsum("sij,ksjr->ksir", keep, x[0]) + np.einsum("sij,ksjr->ksir", trace, x[1])  # [K,s,(C C' x),(a' A)]
+    pre = pre.reshape(-1, 2, bra, right).transpose(0, 3, 2, 1).reshape(-1, bra * 2)
+    out = (pre @ ket.conj().reshape(bra * 2, right)).reshape(-1, right, right)  # [.., A, A']
+    return out.transpose(0, 2, 1).reshape(-1, s, cr, cr, right, right)
 
 
 def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
@@ -372,7 +379,7 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
     count = len(which)
     snap_rank = ranks[which]
     sign = 1 - 2 * flip_z.astype(np.int8)
-    envs = {1: (np.arange(count), np.ones((count, 1, 1, 1, 1, 1), dtype=complex))}
+    envs = {1: (np.arange(count), np.ones((1, count, 1, 1, 1, 1), dtype=complex))}
     for q, ket in enumerate(kets):
         g_pair = np.concatenate([g[q][:, 1, :].T, 0.5 * (g[q][:, 0, :] - g[q][:, 1, :]).T]).astype(complex)
         parts: dict = {}
@@ -384,8 +391,9 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
                 f = phi[q][which[r_sel], :left, :, :right].copy()
                 f[:, :, 1] *= sign[r_sel, q, None, None]
                 f = np.where(flip_x[r_sel, q, None, None, None], f[:, :, ::-1], f)
-                parts.setdefault(int(right), []).append((r_sel, _site_step(env[sel], ket, f, g_pair)))
-        envs = {r: (np.concatenate([p[0] for p in ps]), np.concatenate([p[1] for p in ps])) for r, ps in parts.items()}
+                parts.setdefault(int(right), []).append((r_sel, _site_step(env[:, sel], ket, f, g_pair)))
+        envs = {r: (np.concatenate([p[0] for p in ps]), np.concatenate([p[1] for p in ps], axis=1))
+                for r, ps in parts.items()}
     rows, env = envs[1]
     out = np.empty(count)
     out[rows] = env.reshape(len(rows)).real
