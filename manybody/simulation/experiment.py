@@ -165,8 +165,10 @@ def default_workers() -> int:
 def single_threaded_blas():
     """BLAS on one thread inside (our threads share the cores instead), if threadpoolctl is installed.
 
-    Several threads calling a multithreaded OpenBLAS on small matrices wait on
-    each other's thread pool and run slower than one thread alone.
+    The sampling kernels multiply small matrices (snapshots x bond dimension),
+    for which a multithreaded OpenBLAS mostly waits on its own threads: on a
+    busy 2-core machine one BLAS thread was 5x faster, and several of our
+    threads calling a multithreaded BLAS were slower than one alone.
     """
     try:
         from threadpoolctl import threadpool_limits
@@ -187,7 +189,7 @@ def ordered_map(fn, items, workers: int):
         yield from map(fn, items)
         return
     items = iter(items)
-    with single_threaded_blas(), ThreadPoolExecutor(max_workers=workers) as pool:
+    with ThreadPoolExecutor(max_workers=workers) as pool:
         # range first in zip: it stops without taking one item too many from ``items``
         pending = deque(pool.submit(fn, item) for _, item in zip(range(CHUNKS_IN_FLIGHT * workers), items))
         try:
@@ -230,13 +232,14 @@ def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, s
         return np.repeat(part.ids, shots), noise.apply(bits, rng), lost
 
     written = 0
-    chunks = ordered_map(draw, zip(starts, chunk_seeds), workers)
-    for _, (ids, bits, lost) in zip(progress(starts) if progress else starts, chunks):
-        if backend == "mps" and not ens.is_local:
-            meta["discarded_weight"] = max(meta.get("discarded_weight", 0.0), lost)
-        keep = min(len(ids), n_snapshots - written)
-        yield ids[:keep], bits[:keep], np.ones(keep, dtype=np.int64)
-        written += keep
+    with single_threaded_blas():  # for the whole run: the same arithmetic whatever the number of workers
+        chunks = ordered_map(draw, zip(starts, chunk_seeds), workers)
+        for _, (ids, bits, lost) in zip(progress(starts) if progress else starts, chunks):
+            if backend == "mps" and not ens.is_local:
+                meta["discarded_weight"] = max(meta.get("discarded_weight", 0.0), lost)
+            keep = min(len(ids), n_snapshots - written)
+            yield ids[:keep], bits[:keep], np.ones(keep, dtype=np.int64)
+            written += keep
 
 
 def simulate(model, state: str, n_snapshots: int, ensemble_kind: str = "local", depth: int = 0,
