@@ -1,0 +1,177 @@
+"""Shallow-circuit fidelity to MPS targets through a fitted inverse channel (manybody.estimation.shallow_network)."""
+
+import itertools
+
+import numpy as np
+import pytest
+import quimb.tensor as qtn
+
+from manybody.errors import InputError
+from manybody.estimation import fidelity as fid
+from manybody.estimation import shallow_network as sn
+from manybody.estimation.stabilizer import walsh_hadamard
+from manybody.measure.ensembles import ShallowEnsemble
+from manybody.simulation.sampling import dense_to_tensors, sample_dense, sample_mps
+from tests.helpers import chain, dense_unitary
+
+PAULIS = [np.eye(2), np.array([[0, 1], [1, 0]]), np.diag([1.0, -1.0]), np.array([[0, -1j], [1j, 0]])]
+
+
+def all_patterns(n):
+    return np.array(list(itertools.product([0, 1], repeat=n)), dtype=bool)
+
+
+def random_state(n, seed):
+    rng = np.random.default_rng(seed)
+    psi = rng.normal(size=2**n) + 1j * rng.normal(size=2**n)
+    return psi / np.linalg.norm(psi)
+
+
+# ------------------------------------------------------- (a) eigenvalues as an MPS
+@pytest.mark.parametrize("n, depth", [(8, 1), (8, 3), (10, 2), (10, 4)])
+def test_eigenvalue_mps_equals_the_support_chain_on_every_pattern(n, depth):
+    # lambda(s) = sum_s' Prob(s' | s) 3^-|s'| contracted over the light cone (docs/design.md section 3.3)
+    ens = ShallowEnsemble(n, depth, chain(n))
+    patterns = all_patterns(n)
+    exact = np.array([ens.eigenvalue(p) for p in patterns])
+    np.testing.assert_allclose(sn.mps_values(sn.eigenvalue_mps(ens), patterns), exact, rtol=1e-12)
+
+
+def test_eigenvalue_mps_published_values():
+    # depth 0: 3^-|P| (Huang, Kueng, Preskill, Nat. Phys. 16, 1050 (2020)); one random two-qubit
+    # Clifford on the support is the global ensemble of two qubits: 1/(2^2 + 1) (same source)
+    lam = sn.eigenvalue_mps(ShallowEnsemble(6, 0, chain(6)))
+    patterns = all_patterns(6)
+    np.testing.assert_allclose(sn.mps_values(lam, patterns), 3.0 ** -patterns.sum(axis=1), rtol=1e-12)
+    lam = sn.eigenvalue_mps(ShallowEnsemble(6, 1, chain(6)))
+    pair = np.zeros((1, 6), dtype=bool)
+    pair[0, 2:4] = True
+    assert sn.mps_values(lam, pair)[0] == pytest.approx(1 / 5, rel=1e-12)
+
+
+# ------------------------------------------------------- the fitted inverse and its residual
+def test_fit_residual_reported_exactly_and_shrinks_with_bond():
+    n = 12
+    ens = ShallowEnsemble(n, 3, chain(n))
+    patterns = all_patterns(n)
+    lam = np.array([ens.eigenvalue(p) for p in patterns])  # the chain itself, not the MPS
+    rms = []
+    for bond in (2, 4):
+        inv = sn.shallow_inverse(ens, bond=bond)
+        r = lam * sn.mps_values(inv.inverse, patterns) - 1.0
+        assert inv.exhaustive and inv.checked_patterns == 2**n
+        assert inv.max_residual == pytest.approx(np.abs(r).max(), rel=1e-8)
+        # weight 1/2 per bit: the plain mean over all 2^n patterns
+        assert inv.rms_residual == pytest.approx(np.sqrt(np.mean(r**2)), rel=1e-6)
+        rms.append(inv.rms_residual)
+    assert rms[1] < 0.1 * rms[0]
+
+
+# ------------------------------------------------------- (b) per-snapshot values against dense routes
+def shallow_setup(n, depth, shots, n_settings, seed, psi):
+    rng = np.random.default_rng(seed)
+    ens = ShallowEnsemble(n, depth, chain(n))
+    settings = ens.draw(n_settings, rng)
+    bits = sample_dense(psi, ens, settings, shots, rng)
+    return ens, settings, np.repeat(np.arange(n_settings), shots), bits
+
+
+@pytest.mark.parametrize("n, bond", [(8, 2), (10, 4), (10, 16)])
+def test_mps_route_within_the_residual_bound_of_the_exact_dense_values(n, bond):
+    # exact f_i from the dense Walsh-Hadamard route (docs/design.md section 4.5); the fitted g
+    # changes f_i by 2^-n sum_z (-1)^(z.b) <psi|Q_z|psi> r(Q_z) / lambda(Q_z), Q_z = U^dag Z^z U,
+    # so |f_mps - f_exact| <= max|r| 2^-n sum_z |<psi|Q_z|psi>| / lambda(Q_z)
+    psi = random_state(n, 3)
+    ens, settings, idx, bits = shallow_setup(n, 3, 2, 12, 4, psi)
+    inv = sn.shallow_inverse(ens, bond=bond)
+    exact = fid.shallow_fidelity(psi, ens, settings, idx, bits)
+    got = sn.shallow_fidelity_mps(inv, dense_to_tensors(psi), ens, settings, idx, bits)
+    probs = fid.rotated_probabilities(psi, ens, settings)
+    inv_lam = fid.inverse_eigenvalue_table(ens, fid.stabilizer_supports(ens, settings))
+    bound = inv.max_residual * (np.abs(walsh_hadamard(probs)) * inv_lam).sum(axis=1) / 2**n
+    assert np.all(np.abs(got - exact) <= bound[idx] * (1 + 1e-9) + 1e-9)
+    if bond < 16:  # the check has teeth: a coarse fit does move the values
+        assert inv.max_residual > 1e-4 and np.max(np.abs(got - exact)) > 1e-6
+    else:
+        np.testing.assert_allclose(got, exact, atol=1e-8)
+
+
+def dense_inverse_channel(n, weights_of_support, sigma):
+    """2^-n sum_P w(supp P) tr(P sigma) P with every Pauli string built as a Kronecker product."""
+    out = np.zeros_like(sigma)
+    for codes in itertools.product(range(4), repeat=n):
+        p = np.array([[1.0]])
+        for c in codes:
+            p = np.kron(p, PAULIS[c])
+        support = np.array(codes) > 0
+        out += weights_of_support(support) * np.trace(p @ sigma) * p
+    return out / 2**n
+
+
+def test_brute_force_dense_construction_from_the_definition():
+    # M^-1(X) = 2^-n sum_P tr(P X) P / lambda_P (a Pauli-diagonal channel; Huang, Kueng, Preskill 2020),
+    # the approximate G the same with g(supp P); sigma = U^dag|b><b|U from the setting's gate unitaries
+    n = 5
+    psi = random_state(n, 7)
+    ens, settings, idx, bits = shallow_setup(n, 2, 2, 3, 8, psi)
+    inv = sn.shallow_inverse(ens, bond=2)
+    got = sn.shallow_fidelity_mps(inv, dense_to_tensors(psi), ens, settings, idx, bits)
+    exact = fid.shallow_fidelity(psi, ens, settings, idx, bits)
+    index = bits.astype(np.int64) @ (1 << np.arange(n - 1, -1, -1))
+    for i, (k, b) in enumerate(zip(idx, index)):
+        phi = dense_unitary(ens, settings, k).conj().T[:, b]
+        sigma = np.outer(phi, phi.conj())
+        approx = dense_inverse_channel(n, lambda s: sn.mps_values(inv.inverse, s[None])[0], sigma)
+        inverse = dense_inverse_channel(n, lambda s: 1.0 / ens.eigenvalue(s), sigma)
+        assert np.vdot(psi, approx @ psi).real == pytest.approx(got[i], abs=1e-9)
+        assert np.vdot(psi, inverse @ psi).real == pytest.approx(exact[i], abs=1e-9)
+    assert np.max(np.abs(got - exact)) > 1e-6  # bond 2 is a coarse fit: the two constructions differ
+
+
+def test_inputs_are_checked():
+    ens = ShallowEnsemble(4, 1, np.array([(0, 2), (1, 3)]))
+    with pytest.raises(InputError, match="neighbouring qubits"):
+        sn.eigenvalue_mps(ens)
+    ens = ShallowEnsemble(4, 1, chain(4))
+    settings = ens.draw(1, 0)
+    with pytest.raises(InputError, match="5 sites but the snapshots have 4 qubits"):
+        sn.shallow_fidelity_mps(sn.shallow_inverse(ens, bond=2), qtn.MPS_computational_state("00000"), ens,
+                                settings, np.zeros(1, dtype=int), np.zeros((1, 4), dtype=np.uint8))
+
+
+# ------------------------------------------------------- (c) beyond dense sizes
+def mps_fidelity_estimate(state, target, n, depth, n_settings, seed, bond=8):
+    rng = np.random.default_rng(seed)
+    ens = ShallowEnsemble(n, depth, chain(n))
+    settings = ens.draw(n_settings, rng)
+    bits, _ = sample_mps(state, ens, settings, 1, rng)
+    inv = sn.shallow_inverse(ens, bond=bond)
+    f = sn.shallow_fidelity_mps(inv, target, ens, settings, np.arange(n_settings), bits)
+    return f.mean(), f.std(ddof=1) / np.sqrt(len(f)), inv
+
+
+def assert_within(mean, error, exact, inv):
+    # 4 standard errors (common practice, no source) plus the bias bound max|r| of the fit;
+    # beyond 16 qubits max|r| is taken over a sample of patterns (see ShallowInverse)
+    assert abs(mean - exact) <= 4 * error + inv.bias_bound, (mean, error, inv.bias_bound)
+
+
+def test_product_state_fidelity_beyond_dense_sizes():
+    # a state has fidelity 1 with itself; |0...0> and |1...1> are orthogonal: fidelity 0
+    n = 24
+    zeros = qtn.MPS_computational_state("0" * n)
+    ones = qtn.MPS_computational_state("1" * n)
+    mean, err, inv = mps_fidelity_estimate(zeros, zeros, n, 2, 150, 11)
+    assert err < 0.5
+    assert_within(mean, err, 1.0, inv)
+    mean, err, inv = mps_fidelity_estimate(zeros, ones, n, 2, 150, 12)
+    assert_within(mean, err, 0.0, inv)
+
+
+def test_ghz_fidelity_beyond_dense_sizes():
+    n = 24
+    ghz = qtn.MPS_ghz_state(n)
+    mean, err, inv = mps_fidelity_estimate(ghz, ghz, n, 3, 120, 13)
+    assert_within(mean, err, 1.0, inv)
+    mean, err, inv = mps_fidelity_estimate(qtn.MPS_computational_state("01" * (n // 2)), ghz, n, 3, 120, 14)
+    assert_within(mean, err, 0.0, inv)  # <GHZ|0101...> = 0
