@@ -1,0 +1,87 @@
+"""Shallow-circuit fidelity to a 40-site MPS target of bond 32: time per snapshot and fit residual.
+
+Ours: manybody.estimation.shallow_network (fitted inverse g ~ 1/lambda of bond
+D, snapshots batched and grouped by the bonds of U^dag|b>). Baseline: a
+straightforward quimb contraction per snapshot of <psi| G(|phi><phi|) |psi>
+(the same g, the same phi = U^dag|b>), as one tensor network with a greedy
+path. Outcome bits are drawn uniformly: the cost does not depend on them
+(Born sampling of a bond-32 target through depth-3 circuits costs seconds per
+setting here and is timed in bench_sampling.py).
+
+Run: python benchmarks/bench_shallow_fidelity.py [--quick]
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+
+import numpy as np
+import quimb.tensor as qtn
+
+from manybody.estimation import shallow_network as sn
+from manybody.measure.ensembles import ShallowEnsemble
+from manybody.simulation.sampling import mps_site_tensors
+
+
+def timed(fn):
+    start = time.perf_counter()
+    out = fn()
+    return out, time.perf_counter() - start
+
+
+def baseline(inverse, tensors, ens, settings, setting_index, bits):
+    """Per snapshot: phi_b = P_b U^dag|0>, the MPO of G(|phi_b><phi_b|), one quimb contraction."""
+    n = ens.n_qubits
+    flips = {0: np.eye(2), 1: np.array([[0, 1], [1, 0]]), 2: np.diag([1.0, -1.0]), 3: np.array([[0, -1], [1, 0]])}  # Y up to a phase
+    out = []
+    for k, b in zip(setting_index, bits):
+        one = settings.take(np.array([k]))
+        phi, ranks = sn.compress_states(sn.setting_states(ens, one))
+        gen = sn.flip_generators(ens, one)[0]
+        xz = b @ np.stack([gen & 1, gen >> 1], axis=-1).reshape(n, 2 * n) % 2
+        tn = []
+        for q in range(n):
+            code = int(xz[2 * q] + 2 * xz[2 * q + 1])  # Pauli code x + 2z of P_b on qubit q
+            f = np.einsum("st,ctC->csC", flips[code], phi[q][0, :ranks[0, q], :, :ranks[0, q + 1]])
+            g = inverse.inverse[q]
+            keep = np.einsum("csC,dtD,kK->cdkstCDK", f, f.conj(), g[:, 1, :])
+            tr = np.einsum("cuC,duD,kK,st->cdkstCDK", f, f.conj(), 0.5 * (g[:, 0, :] - g[:, 1, :]), np.eye(2))
+            o = (keep + tr).reshape(f.shape[0] ** 2 * g.shape[0], 2, 2, -1)
+            a = tensors[q]
+            tn += [qtn.Tensor(a, inds=(f"k{q}", f"k{q + 1}", f"t{q}")),
+                   qtn.Tensor(a.conj(), inds=(f"b{q}", f"b{q + 1}", f"s{q}")),
+                   qtn.Tensor(o, inds=(f"o{q}", f"s{q}", f"t{q}", f"o{q + 1}"))]
+        value = qtn.TensorNetwork(tn).contract(..., optimize="greedy")
+        value = value.data if isinstance(value, qtn.Tensor) else value  # open size-1 end bonds
+        out.append(complex(np.asarray(value).ravel()[0]).real)
+    return np.array(out)
+
+
+def main(quick: bool):
+    n, chi, depth = 40, 32, 3
+    ens = ShallowEnsemble(n, depth, np.array([(q, q + 1) for q in range(n - 1)]))
+    target = qtn.MPS_rand_state(n, chi, dtype=complex, seed=0)
+    tensors = mps_site_tensors(target)
+    rng = np.random.default_rng(1)
+    n_snapshots, n_baseline = (16, 2) if quick else (64, 4)
+    settings = ens.draw(n_snapshots, rng)
+    bits = rng.integers(0, 2, size=(n_snapshots, n))
+    index = np.arange(n_snapshots)
+    print(f"{n}-site random MPS target of bond {chi}, depth-{depth} brickwork, {n_snapshots} snapshots "
+          f"(baseline on {n_baseline})")
+    print(f"{'D':>3} {'fit s':>7} {'rms r':>9} {'max |r| (sampled)':>18} {'ours ms/snap':>13} "
+          f"{'baseline ms/snap':>17} {'ratio':>7} {'max |diff|':>11}")
+    for bond in ((4, 8) if quick else (4, 6, 8)):
+        inverse, fit_time = timed(lambda: sn.shallow_inverse(ens, bond=bond))
+        ours, t_ours = timed(lambda: sn.shallow_fidelity_mps(inverse, tensors, ens, settings, index, bits))
+        base, t_base = timed(lambda: baseline(inverse, tensors, ens, settings, index[:n_baseline],
+                                              bits[:n_baseline]))
+        per_ours, per_base = 1e3 * t_ours / n_snapshots, 1e3 * t_base / n_baseline
+        print(f"{bond:>3} {fit_time:>7.2f} {inverse.rms_residual:>9.2e} {inverse.max_residual:>18.2e} "
+              f"{per_ours:>13.1f} {per_base:>17.1f} {per_base / per_ours:>7.1f} "
+              f"{np.max(np.abs(ours[:n_baseline] - base)):>11.1e}")
+
+
+if __name__ == "__main__":
+    main("--quick" in sys.argv)
