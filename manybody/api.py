@@ -135,14 +135,15 @@ def _in_memory(shadow):
 # --------------------------------------------------------------- simulation
 def simulate(model, state="ground", snapshots: int | None = None, ensemble: str = "local", depth: int = 0,
              shots: int = 1, times=None, noise=None, settings=None, seed=None, backend: str = "auto",
-             bond_dim: int = 128, progress=None):
+             bond_dim: int = 128, progress=None, workers: int | None = None):
     """Synthetic experiment in memory: a Shadow of ``state``, or a list of Shadows with ``times`` (a quench).
 
     ``state``: "ground", a product state ("neel", "zero", "one", "plus",
     "minus" or one letter per qubit from 0 1 + -), "STATE@SPEC.toml", or a
     state object (numpy vector, quimb MPS). ``noise``: a Noise, or a readout
     flip probability. ``settings``: drawn beforehand (:func:`draw_settings`);
-    then ``snapshots`` defaults to settings x shots.
+    then ``snapshots`` defaults to settings x shots. ``workers``: threads drawing chunks of settings
+    (default: the number of cores); the records do not depend on it.
     """
     from manybody.simulation.experiment import Noise, simulate_in_memory
 
@@ -159,7 +160,7 @@ def simulate(model, state="ground", snapshots: int | None = None, ensemble: str 
     if times is not None:
         times = [float(t) for t in np.atleast_1d(times)]
     shadows = simulate_in_memory(model, state, snapshots, ensemble, depth, shots, times, noise, backend, bond_dim,
-                                 seed, settings=settings, progress=progress)
+                                 seed, settings=settings, progress=progress, workers=workers)
     return shadows if times is not None else shadows[0]
 
 

@@ -127,7 +127,7 @@ def cmd_simulate(args) -> int:
         raise InputError(f"-o {args.output}: is a file; with --times give a folder for the shadow files")
     paths = simulate(model, args.state, args.snapshots, args.ensemble, depth, args.shots, times, noise,
                      args.backend, args.bond_dim, args.seed, args.output,
-                     progress=progress_bar(args, desc="settings", unit="chunk"))
+                     progress=progress_bar(args, desc="settings", unit="chunk"), workers=args.workers)
     for path in paths:
         print(f"wrote {path}")
     return 0

@@ -204,6 +204,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--backend", choices=("auto", "dense", "mps"), default="auto", help="state representation")
     p.add_argument("--bond-dim", type=BOND_DIM, default=128, metavar="CHI", help="largest MPS bond dimension")
     p.add_argument("--seed", type=SEED, default=None, help="random seed (default: fresh, recorded in the files)")
+    p.add_argument("--workers", type=whole(1, 1024), default=None, metavar="W",
+                   help="threads drawing chunks of settings at once (default: the number of cores); the records "
+                        "are the same for any W")
     p.add_argument("-o", "--output", required=True, metavar="OUT", help="shadow file, or folder with --times")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_simulate)
