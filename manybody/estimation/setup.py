@@ -79,9 +79,14 @@ class Eigenvalues:
         return self.of_support(np.asarray(codes) != 0)
 
     def of_support(self, support) -> float:
-        """lambda of a support (boolean mask over the qubits)."""
-        source = self.calibrated if self.calibrated is not None else self.ensemble
-        return source.eigenvalue(support)
+        """lambda of a support (boolean mask over the qubits), each support computed once per estimate."""
+        support = np.asarray(support, dtype=bool)
+        key = np.packbits(support).tobytes() + bytes([len(support) % 8])
+        cache = self.__dict__.setdefault("_cache", {})
+        if key not in cache:
+            source = self.calibrated if self.calibrated is not None else self.ensemble
+            cache[key] = source.eigenvalue(support)
+        return cache[key]
 
     def inv_local(self, n: int) -> np.ndarray:
         """1/lambda of each qubit for the local ensemble (3 without calibration)."""
