@@ -58,6 +58,10 @@ EXACT_CUTOFF = 1e-13
 EXHAUSTIVE_QUBITS = 16
 #: random patterns drawn when the residual cannot be checked exhaustively.
 SAMPLED_PATTERNS = 1 << 16
+#: snapshots per chunk are limited so that an environment array stays near this size
+CHUNK_BYTES = 1 << 28
+#: chi_phi^2 assumed for that limit (its mean is about 5 at depth 3, so this is generous)
+TYPICAL_PHI_BOND = 4
 #: ridge on the unit diagonal of the scaled normal equations of the fit.
 RIDGE = 1e-12
 
@@ -409,8 +413,8 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     ``inverse`` from :func:`shallow_inverse` (g ~ 1/lambda, bias at most
     ``inverse.bias_bound``); ``target`` a quimb MPS or (left, right, physical)
     right-canonical tensors; ``setting_index`` (N,) positions in ``settings``;
-    ``bits`` (N, n). Snapshots are taken setting by setting in chunks of about
-    ``chunk``: per distinct setting U^dag|0> is built once, per snapshot only
+    ``bits`` (N, n). Snapshots are taken setting by setting in chunks of at most
+    ``chunk`` (fewer for large bonds, see CHUNK_BYTES): per distinct setting U^dag|0> is built once, per snapshot only
     P_b = U^dag X^b U (XOR of the flip generators selected by b) and the
     sweep of :func:`_sandwich`.
     """
@@ -424,6 +428,9 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     bits = np.asarray(bits, dtype=np.int64)
     order = np.argsort(setting_index, kind="stable")
     out = np.empty(len(setting_index))
+    chi = max(max(a.shape[:2]) for a in tensors)
+    bond = max(a.shape[0] for a in inverse.inverse)
+    chunk = max(1, min(chunk, CHUNK_BYTES // (16 * 2 * TYPICAL_PHI_BOND**2 * bond * chi**2)))
     for start in range(0, len(order), chunk):
         rows = order[start:start + chunk]
         distinct, which = np.unique(setting_index[rows], return_inverse=True)

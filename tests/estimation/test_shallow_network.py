@@ -187,3 +187,18 @@ def test_self_fidelity_of_a_cluster_state_with_many_snapshots():
         cluster.gate_(cz, (q, q + 1), contract="split")
     mean, err, inv = mps_fidelity_estimate(cluster, cluster, n, 3, 2000, 15)
     assert_within(mean, err, 1.0, inv)
+
+
+def test_depth_zero_is_the_local_estimator():
+    # depth 0: lambda = 3^-|s| is a product, the fit is exact at bond 1, and f_i is the local
+    # estimator <psi| (x)_q (3|v_q><v_q| - I) |psi> (Huang, Kueng, Preskill, Nat. Phys. 16, 1050 (2020))
+    n = 12
+    ens = ShallowEnsemble(n, 0, chain(n))
+    target = qtn.MPS_rand_state(n, 4, dtype=complex, seed=5)
+    rng = np.random.default_rng(6)
+    settings = ens.draw(40, rng)
+    bits, _ = sample_mps(target, ens, settings, 1, rng)
+    inv = sn.shallow_inverse(ens, bond=1)
+    assert inv.max_residual < 1e-10  # rounding only
+    got = sn.shallow_fidelity_mps(inv, target, ens, settings, np.arange(40), bits)
+    np.testing.assert_allclose(got, fid.local_fidelity_mps(target, settings.basis, bits), atol=1e-9)
