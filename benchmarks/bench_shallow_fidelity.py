@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import sys
 import time
+from functools import partial
 
 import numpy as np
 import quimb.tensor as qtn
@@ -73,10 +74,10 @@ def main(quick: bool):
     print(f"{'D':>3} {'fit s':>7} {'rms r':>9} {'max |r| (sampled)':>18} {'ours ms/snap':>13} "
           f"{'baseline ms/snap':>17} {'ratio':>7} {'max |diff|':>11}")
     for bond in ((4, 8) if quick else (4, 6, 8)):
-        inverse, fit_time = timed(lambda: sn.shallow_inverse(ens, bond=bond))
-        ours, t_ours = timed(lambda: sn.shallow_fidelity_mps(inverse, tensors, ens, settings, index, bits))
-        base, t_base = timed(lambda: baseline(inverse, tensors, ens, settings, index[:n_baseline],
-                                              bits[:n_baseline]))
+        inverse, fit_time = timed(partial(sn.shallow_inverse, ens, bond=bond))
+        ours, t_ours = timed(partial(sn.shallow_fidelity_mps, inverse, tensors, ens, settings, index, bits))
+        base, t_base = timed(partial(baseline, inverse, tensors, ens, settings, index[:n_baseline],
+                                     bits[:n_baseline]))
         per_ours, per_base = 1e3 * t_ours / n_snapshots, 1e3 * t_base / n_baseline
         print(f"{bond:>3} {fit_time:>7.2f} {inverse.rms_residual:>9.2e} {inverse.max_residual:>18.2e} "
               f"{per_ours:>13.1f} {per_base:>17.1f} {per_base / per_ours:>7.1f} "

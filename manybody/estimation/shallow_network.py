@@ -65,7 +65,7 @@ TYPICAL_PHI_BOND = 4
 #: ridge on the unit diagonal of the scaled normal equations of the fit.
 RIDGE = 1e-12
 
-_INVERSES: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+_INVERSES: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 
 
 # ----------------------------------------------------------------- MPS helpers
