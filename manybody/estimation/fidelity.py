@@ -23,9 +23,12 @@ accumulator needs only sums (and sums per block of settings for error bars).
   With p(x) = |<x|U|psi>|^2, <psi|U^dag Z^z U|psi> = sum_x (-1)^(z.x) p(x) is
   the Walsh-Hadamard transform of p, so one setting costs two transforms
   and gives f for all 2^n outcomes b at once (exact, dense target).
-  Beyond dense targets, the published route is a tensor-network inverse
-  channel (Bertoni et al., PRL 133, 020602 (2024); Akhtar, Hu, You,
-  Quantum 7, 1026 (2023)); it is not implemented here.
+  Beyond EXACT_SHALLOW_QUBITS the 2^n table of 1/lambda is out of reach:
+  :mod:`manybody.estimation.shallow_network` fits 1/lambda as a matrix
+  product state over support bits (a tensor-network inverse channel, the
+  route of Bertoni et al., PRL 133, 020602 (2024); Akhtar, Hu, You,
+  Quantum 7, 1026 (2023)) and contracts each snapshot with an MPS target;
+  its residual bounds the bias and is carried into the error bar.
 
 Index convention: qubit 0 is the most significant bit of a basis-state
 index, outcome bit 0 is the +1 eigenvalue (docs/design.md section 2).
@@ -38,9 +41,9 @@ import weakref
 import numpy as np
 
 from manybody.errors import InputError
+from manybody.estimation.stabilizer import support_eigenvalues, walsh_hadamard
 from manybody.measure.clifford import clifford_table
 from manybody.measure.paulis import BASIS_PAULI
-from manybody.estimation.stabilizer import support_eigenvalues, walsh_hadamard
 from manybody.simulation.sampling import mps_site_tensors, rotate_dense
 from manybody.simulation.statevector import BASIS_ROTATIONS
 
@@ -48,6 +51,8 @@ from manybody.simulation.statevector import BASIS_ROTATIONS
 CHUNK_AMPLITUDES = 1 << 20
 #: largest target for the dense routes (shallow, global, local dense).
 MAX_DENSE_QUBITS = 20
+#: shallow circuits: exact (2^n table of 1/lambda) up to this size, the fitted tensor-network inverse beyond.
+EXACT_SHALLOW_QUBITS = 14
 
 _INV_LAMBDA_TABLES: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
 
@@ -303,18 +308,42 @@ def _per_setting(psi, ensemble, settings, setting_index, bits, table_of) -> np.n
 
 
 # ----------------------------------------------------------------- dispatch
-def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bits: np.ndarray) -> np.ndarray:
+def uses_network_inverse(ensemble) -> bool:
+    """Shallow circuits beyond EXACT_SHALLOW_QUBITS take the fitted tensor-network inverse (approximate)."""
+    return ensemble.kind == "shallow" and ensemble.n_qubits > EXACT_SHALLOW_QUBITS
+
+
+def as_mps(target):
+    """A quimb MPS of the target (a numpy vector is split by quimb's exact SVDs)."""
+    if hasattr(target, "to_dense") and not isinstance(target, np.ndarray):
+        return target
+    import quimb.tensor as qtn
+
+    psi = dense_target(target)
+    return qtn.MatrixProductState.from_dense(psi, dims=[2] * int(np.log2(len(psi))))
+
+
+def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bits: np.ndarray,
+                       inverse=None) -> np.ndarray:
     """Per-snapshot fidelity estimates f_s (N,) for any ensemble; their mean estimates <psi|rho|psi>.
 
     ``target``: numpy state vector or quimb MPS. Local ensemble: MPS targets
-    use transfer matrices, dense targets the product operator. Shallow and
-    global ensembles: exact dense routes (an MPS target is made dense).
+    use transfer matrices, dense targets the product operator. Global
+    ensemble and shallow circuits up to EXACT_SHALLOW_QUBITS: exact dense
+    routes (an MPS target is made dense). Larger shallow circuits: the fitted
+    inverse ``inverse`` (default :func:`shallow_network.shallow_inverse`), biased
+    by at most its ``bias_bound``.
     """
     if ensemble.is_local:
         basis = settings.basis[np.asarray(setting_index, dtype=np.int64)]
         if hasattr(target, "to_dense") and not isinstance(target, np.ndarray):
             return local_fidelity_mps(target, basis, bits)
         return local_fidelity_dense(target, basis, bits)
+    if uses_network_inverse(ensemble):
+        from manybody.estimation.shallow_network import shallow_fidelity_mps, shallow_inverse
+
+        inverse = shallow_inverse(ensemble) if inverse is None else inverse
+        return shallow_fidelity_mps(inverse, as_mps(target), ensemble, settings, setting_index, bits)
     if ensemble.n_qubits > MAX_DENSE_QUBITS:
         raise InputError(f"fidelity with the {ensemble.kind} ensemble needs a dense target of at most "
                          f"{MAX_DENSE_QUBITS} qubits; this one has {ensemble.n_qubits}")

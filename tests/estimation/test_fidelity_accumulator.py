@@ -34,6 +34,36 @@ def test_fidelity_of_the_sampled_state_to_itself_and_to_a_product_state(depth):
         assert ok, worst
 
 
+def test_shallow_fidelity_beyond_the_exact_size_carries_the_fit_residual():
+    # 16 qubits at depth 2: the fitted tensor-network inverse (docs/design.md section 4). The GHZ
+    # state's fidelity to itself is 1 and to |0...0> is 1/2 (facts of the trade); the error bar
+    # includes the fit's bias bound max|lambda g - 1| (checked on all 2^16 support patterns).
+    import quimb.tensor as qtn
+
+    from manybody.estimation.shallow_network import shallow_inverse
+
+    from manybody.io.shadow import Shadow
+    from manybody.simulation.sampling import sample_mps
+
+    n = 16
+    ghz = np.zeros(2**n)
+    ghz[[0, -1]] = 1 / np.sqrt(2)
+    ens = ShallowEnsemble(n, 2, chain(n))
+    rng = np.random.default_rng(5)
+    settings = ens.draw(600, rng)
+    bits, _ = sample_mps(qtn.MPS_ghz_state(n), ens, settings, 1, rng)  # exact: bond 2 never truncated
+    shadow = Shadow(ensemble=ens, settings=settings, qubit_site=np.arange(n), record_setting=settings.ids,
+                    outcomes=bits, counts=np.ones(600, np.int64))
+    bias = shallow_inverse(ens).bias_bound
+    for target, value in ((qtn.MPS_computational_state("0" * n), 0.5), (ghz, 1.0)):
+        result = estimate(shadow, None, quantities=("fidelity",), options={"target": target})
+        attrs = result.fidelity.attrs
+        assert attrs["inverse_max_residual_over"] == "all support patterns"
+        assert float(result.fidelity_err) >= bias == attrs["bias_bound_in_error"]
+        ok, worst = within(result.fidelity.values, result.fidelity_err.values, value)
+        assert ok, worst
+
+
 def test_robust_fidelity_with_readout_errors():
     # Readout flips shrink lambda per qubit; the calibrated inverse removes the bias
     # (Chen, Yu, Zeng, Flammia, PRX Quantum 2, 030348 (2021)). Target: the prepared state itself.

@@ -6,13 +6,27 @@ over qubits, the global closed form, the shallow inverse diagonal in the
 Pauli basis); the estimate is their mean, its error bar the jackknife over
 blocks of settings. Robust (calibrated) estimates take one noisy eigenvalue
 per qubit, so they need the local ensemble.
+
+Shallow circuits beyond the exact size use a fitted inverse channel whose
+residual r = lambda g - 1 bounds the bias, |E[f] - F| <= max |r|: that
+bound is added to the error bar in quadrature (so the error bar is never
+smaller than the approximation's own error) and recorded, with the fit's
+bond and residuals, in the attributes of ``fidelity``.
 """
 
 from __future__ import annotations
 
+import numpy as np
+
 from manybody.errors import InputError
-from manybody.estimation.accumulators.base import Accumulator, put
-from manybody.estimation.fidelity import fidelity_snapshots, local_fidelity_dense, local_fidelity_mps
+from manybody.estimation.accumulators.base import Accumulator, interval_key, put
+from manybody.estimation.fidelity import (
+    as_mps,
+    fidelity_snapshots,
+    local_fidelity_dense,
+    local_fidelity_mps,
+    uses_network_inverse,
+)
 
 
 class Fidelity(Accumulator):
@@ -24,6 +38,12 @@ class Fidelity(Accumulator):
             raise InputError("target: robust fidelities need the local ensemble (one calibrated eigenvalue per "
                              "qubit); estimate this shadow without a calibration", argument="target")
         self.target, self.description = target, description
+        self.inverse = None
+        if uses_network_inverse(setup.ensemble):
+            from manybody.estimation.shallow_network import shallow_inverse
+
+            self.inverse = shallow_inverse(setup.ensemble)
+            self.target = as_mps(target)
 
     @classmethod
     def build(cls, setup, options):
@@ -39,12 +59,33 @@ class Fidelity(Accumulator):
             kernel = local_fidelity_mps if mps else local_fidelity_dense
             values = kernel(self.target, chunk.basis, chunk.bits, inv)
         else:
-            values = fidelity_snapshots(self.target, setup.ensemble, chunk.settings, chunk.where, chunk.bits)
+            values = fidelity_snapshots(self.target, setup.ensemble, chunk.settings, chunk.where, chunk.bits,
+                                        inverse=self.inverse)
         self.sums.add("fidelity", chunk.onehot, values)
 
     def estimates(self, s):
         return {"fidelity": s["fidelity"] / s["n"]}
 
+    def errors(self, counts, method):
+        """The statistical error bar, and the fitted inverse's bias bound added in quadrature."""
+        full, err = super().errors(counts, method)
+        if self.inverse is not None and "fidelity" in err:
+            bias = self.inverse.bias_bound
+            total = np.sqrt(np.asarray(err["fidelity"]) ** 2 + bias**2)
+            if interval_key("fidelity") in err:
+                err[interval_key("fidelity")] = np.sqrt(err[interval_key("fidelity")] ** 2 + bias**2)
+            err["fidelity"] = total
+        return full, err
+
     def variables(self, full, err, data, coords):
         put(data, "fidelity", (), full["fidelity"], err)
-        data["fidelity"] += ({"target": self.description},)  # (dims, value, attributes)
+        attrs = {"target": self.description}
+        if self.inverse is not None:
+            inv = self.inverse
+            attrs.update({"inverse_channel": "fitted matrix product state (approximate)",
+                          "inverse_bond": int(inv.bond), "inverse_rms_residual": float(inv.rms_residual),
+                          "inverse_max_residual": float(inv.max_residual),
+                          "inverse_max_residual_over": "all support patterns" if inv.exhaustive else
+                          f"{inv.checked_patterns} sampled and low-weight support patterns (an estimate)",
+                          "bias_bound_in_error": float(inv.bias_bound)})
+        data["fidelity"] += (attrs,)  # (dims, value, attributes)
