@@ -74,7 +74,7 @@ def test_records_with_counts_give_the_results_of_one_row_per_shot(small_parts):
     _, psi = exact.ground_state(model.hamiltonian)
     shadow = make_shadow(psi, LocalEnsemble(N), 100, shots=40, seed=9)
     key = shadow.record_setting * 2**N + shadow.outcomes @ (2 ** np.arange(N))
-    distinct, first, counts = np.unique(key, return_index=True, return_counts=True)
+    _, first, counts = np.unique(key, return_index=True, return_counts=True)
     grouped = shadow.with_records(shadow.record_setting[first], shadow.outcomes[first], counts)
     assert counts.max() > 6
     subsystems = parse_subsystems("0-2", N)

@@ -138,7 +138,10 @@ class LocalMutualInformation(MutualInformation):
         if self.setup.multi and self.setup.n_settings * (2 * n) ** 2 <= MAX_JOINT_ENTRIES:
             o2 = np.zeros((len(chunk), 2 * n))
             o2[np.arange(len(chunk))[:, None], 2 * np.arange(n) + chunk.bits] = 1.0
-            self.per_setting.add("mi_joint", chunk.pos, o2[:, :, None] * o2[:, None, :])
+            step = max(1, int(4e6 // (2 * n) ** 2))  # bounded temporaries of shots x (2n)^2
+            for start in range(0, len(chunk), step):
+                rows = slice(start, start + step)
+                self.per_setting.add("mi_joint", chunk.pos[rows], o2[rows, :, None] * o2[rows, None, :])
 
     def finish(self):
         if "mi_joint" in self.per_setting:
