@@ -47,7 +47,9 @@ def merge(acc, other) -> None:
         acc.merge_state(other)
 
 
-def record_parts(n_records: int, part: int = PART_RECORDS) -> list[tuple[int, int]]:
+def record_parts(n_records: int, part: int | None = None) -> list[tuple[int, int]]:
+    """(start, stop) of each part of ``part`` records (default PART_RECORDS, read when called)."""
+    part = PART_RECORDS if part is None else part
     return [(start, min(start + part, n_records)) for start in range(0, n_records, part)]
 
 
