@@ -276,12 +276,13 @@ def estimate_series(shadows, **kwargs):
     shadows = [_shadow(s) for s in shadows]
     if not shadows:
         raise InputError("shadows: give at least one shadow", argument="shadows")
-    if kwargs.get("scheduler") in ("threads", "sync") and len(shadows) > 1:  # one task per shadow
-        import dask
+    if kwargs.get("scheduler") == "threads" and len(shadows) > 1:  # one task per shadow
+        from concurrent.futures import ThreadPoolExecutor
 
-        serial = {**kwargs, "scheduler": None}
-        results = dask.compute(*[dask.delayed(estimate)(s, **serial) for s in shadows], scheduler=kwargs["scheduler"])
-        return combine_series(list(results), [s.label for s in shadows])
+        serial = {**kwargs, "scheduler": "sync"}  # no threads inside the threads
+        with ThreadPoolExecutor(max(1, min(len(shadows), os.cpu_count() or 1))) as pool:
+            results = list(pool.map(lambda s: estimate(s, **serial), shadows))
+        return combine_series(results, [s.label for s in shadows])
     return combine_series([estimate(s, **kwargs) for s in shadows], [s.label for s in shadows])
 
 

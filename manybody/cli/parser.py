@@ -239,8 +239,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--overlap", metavar="OTHER.nc",
                    help="also estimate tr(rho rho_other) and its normalised form with another shadow of the same qubits")
     p.add_argument("--scheduler", metavar="WHERE",
-                   help="read and accumulate the records in parallel with dask: 'threads' (this machine) or a "
-                        "dask.distributed scheduler address such as tcp://host:8786 (default: serial)")
+                   help="where the parts of the records are accumulated: 'threads' (a pool on this machine, the "
+                        "default with more than one core), 'sync' (this thread) or a dask.distributed scheduler "
+                        "address such as tcp://host:8786; the results are the same")
     p.add_argument("--bipartitions", metavar="A|B;...",
                    help="moments of the partial transpose and the p3-PPT entanglement test of rho_AB, e.g. "
                         "'0-1|2-3' (local ensemble, |A|+|B| <= 6 sites)")

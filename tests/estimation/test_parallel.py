@@ -95,3 +95,14 @@ def test_shot_pieces_repeat_every_record_its_count():
     assert max(len(p) for p, _ in pieces) <= 7
     assert np.array_equal(np.concatenate([p for p, _ in pieces]), np.repeat(pos, counts))
     assert np.array_equal(np.concatenate([b for _, b in pieces]), np.repeat(bits, counts, axis=0))
+
+
+def test_series_on_threads_equals_the_series_in_this_thread():
+    # A quench series runs one shadow per thread; each result must equal the one-thread estimate exactly.
+    import manybody as mb
+
+    model = tfim_model(N)
+    shadows = mb.simulate(model, "neel", 1500, times=[0.0, 0.4, 0.8], seed=4)
+    threads = mb.estimate_series(shadows, subsystems="0-1", scheduler="threads")
+    alone = mb.estimate_series(shadows, subsystems="0-1", scheduler="sync")
+    assert largest_difference(threads, alone) == 0.0
