@@ -31,10 +31,11 @@ from hamiltonians.models import heisenberg, tfim  # noqa: E402
 from manybody.measure.clifford import clifford_table  # noqa: E402
 from manybody.measure.ensembles import LocalEnsemble, ShallowEnsemble  # noqa: E402
 from manybody.references import exact  # noqa: E402
-from manybody.simulation.experiment import _records, default_workers  # noqa: E402
+from manybody.simulation.experiment import _records  # noqa: E402
 from manybody.simulation.noise import Noise  # noqa: E402
 from manybody.simulation.sampling import sample_dense, sample_mps  # noqa: E402
 from manybody.simulation.statevector import BASIS_ROTATIONS  # noqa: E402
+from manybody.threads import available_cores  # noqa: E402
 
 
 def quimb_loop(mps, ensemble, settings, count, rng):
@@ -97,7 +98,7 @@ def parallel_mps_case():
     n, total = 100, 10**6
     mps = qtn.MPS_rand_state(n, 32, seed=1)
     local = LocalEnsemble(n)
-    workers = default_workers()
+    workers = available_cores()
     settings = local.draw(10**5, np.random.default_rng(1))
     _, t = timed(draw_records, mps, local, settings, workers)
     ours = len(settings) / t

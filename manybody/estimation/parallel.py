@@ -19,12 +19,8 @@ an accumulator that keeps other attributes in ``add`` must define it.
 
 from __future__ import annotations
 
-import os
-from collections import deque
-from concurrent.futures import ThreadPoolExecutor
-from contextlib import contextmanager
-
 from manybody.errors import InputError
+from manybody.threads import available_cores, ordered_map, ordered_results, single_threaded_blas
 
 #: records per part (a few chunks each, so that every worker stays busy)
 PART_RECORDS = 1 << 17
@@ -51,31 +47,6 @@ def record_parts(n_records: int, part: int | None = None) -> list[tuple[int, int
     """(start, stop) of each part of ``part`` records (default PART_RECORDS, read when called)."""
     part = PART_RECORDS if part is None else part
     return [(start, min(start + part, n_records)) for start in range(0, n_records, part)]
-
-
-def available_cores() -> int:
-    """The number of cores this process may run on."""
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # not on every platform
-        return os.cpu_count() or 1
-
-
-@contextmanager
-def single_threaded_blas():
-    """BLAS on one thread inside (the parts share the cores instead), when threadpoolctl is installed.
-
-    Several threads calling a multithreaded OpenBLAS on chunk-sized matrices wait
-    on each other's thread pools (and on a busy machine, on everyone's): one
-    BLAS thread per part is faster, and gives the same sums whoever runs it.
-    """
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
-        yield
-        return
-    with threadpool_limits(limits=1, user_api="blas"):
-        yield
 
 
 def fill_part(setup, build, start: int, stop: int, chunk: int, source=None):
@@ -156,47 +127,19 @@ def _run(setup, build, chunk, scheduler, parts):
 
 
 def _ordered_map(fn, items, workers: int):
-    """fn(item) for every item, yielded in order; ``workers`` threads with a bounded number of results ahead."""
+    """fn(item) for every item, yielded in order, on ``workers`` threads with BLAS on one thread."""
     with single_threaded_blas():
-        if workers <= 1:
-            for item in items:
-                yield fn(item)
-            return
-        items = iter(items)
-        with ThreadPoolExecutor(max_workers=workers) as pool:
-            # range first in zip: it stops without taking one item too many from ``items``
-            pending = deque(pool.submit(fn, item) for _, item in zip(range(PARTS_IN_FLIGHT * workers), items))
-            try:
-                while pending:
-                    result = pending.popleft().result()
-                    for item in items:  # refill one slot
-                        pending.append(pool.submit(fn, item))
-                        break
-                    yield result
-            finally:  # an error or an early stop: drop what has not started
-                for future in pending:
-                    future.cancel()
+        yield from ordered_map(fn, items, workers, PARTS_IN_FLIGHT)
 
 
 def _run_cluster(lite, build, chunk, client, source, parts):
     """As :func:`_ordered_map`, on the workers of a dask.distributed cluster, which read the shadow ``source``."""
     window = PARTS_IN_FLIGHT * max(1, len(client.scheduler_info().get("workers", {})))
-    items = iter(parts)
 
     def submit(part):
         return client.submit(fill_part, lite, build, part[0], part[1], chunk, source, pure=False)
 
-    pending = deque(submit(part) for _, part in zip(range(window), items))
-    try:
-        while pending:
-            result = pending.popleft().result()
-            for part in items:
-                pending.append(submit(part))
-                break
-            yield result
-    finally:
-        for future in pending:
-            future.cancel()
+    return ordered_results(submit, parts, window)
 
 
 def _client(scheduler):

@@ -19,9 +19,6 @@ the number of workers.
 from __future__ import annotations
 
 import os
-from collections import deque
-from concurrent.futures import ThreadPoolExecutor
-from contextlib import contextmanager
 from dataclasses import replace
 
 import numpy as np
@@ -34,6 +31,7 @@ from manybody.measure.prepare import coupling_of, fresh_seed
 from manybody.references import exact
 from manybody.simulation.noise import Noise
 from manybody.simulation.sampling import mps_site_tensors, sample_dense, sample_mps
+from manybody.threads import available_cores, ordered_map, single_threaded_blas
 
 #: the dense backend is the default up to this many qubits.
 DENSE_MAX_QUBITS = 14
@@ -125,7 +123,7 @@ def simulate_shadows(model, state, n_snapshots: int | None = None, ensemble_kind
     if shots < 1 or (n_snapshots is not None and n_snapshots < 1):
         raise InputError("snapshots and shots must be at least 1", argument="snapshots")
     backend = choose_backend(model, backend)
-    workers = default_workers() if workers is None else int(workers)
+    workers = available_cores() if workers is None else int(workers)
     if workers < 1:
         raise InputError(f"workers must be at least 1, got {workers}", argument="workers")
     seed = fresh_seed() if seed is None else int(seed)
@@ -151,57 +149,6 @@ def simulate_shadows(model, state, n_snapshots: int | None = None, ensemble_kind
         yield replace(header, label=label, metadata=meta), _records(psi, ens, drawn, shots, n_snapshots, noise,
                                                                    backend, bond_dim, tseed, meta, progress,
                                                                    workers)
-
-
-def default_workers() -> int:
-    """The number of cores this process may run on."""
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # not on every platform
-        return os.cpu_count() or 1
-
-
-@contextmanager
-def single_threaded_blas():
-    """BLAS on one thread inside (our threads share the cores instead), if threadpoolctl is installed.
-
-    The sampling kernels multiply small matrices (snapshots x bond dimension),
-    for which a multithreaded OpenBLAS mostly waits on its own threads: on a
-    busy 2-core machine one BLAS thread was 5x faster, and several of our
-    threads calling a multithreaded BLAS were slower than one alone.
-    """
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
-        yield
-        return
-    with threadpool_limits(limits=1, user_api="blas"):
-        yield
-
-
-def ordered_map(fn, items, workers: int):
-    """fn(item) for every item, yielded in order; ``workers`` threads, a bounded number of results ahead.
-
-    With one worker this is the plain serial loop. At most CHUNKS_IN_FLIGHT
-    x workers results are pending, so memory stays flat however many items.
-    """
-    if workers <= 1:
-        yield from map(fn, items)
-        return
-    items = iter(items)
-    with ThreadPoolExecutor(max_workers=workers) as pool:
-        # range first in zip: it stops without taking one item too many from ``items``
-        pending = deque(pool.submit(fn, item) for _, item in zip(range(CHUNKS_IN_FLIGHT * workers), items))
-        try:
-            while pending:
-                result = pending.popleft().result()
-                for item in items:  # refill one slot
-                    pending.append(pool.submit(fn, item))
-                    break
-                yield result
-        finally:  # the consumer stopped early or an error: drop what has not started
-            for future in pending:
-                future.cancel()
 
 
 def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, seed, meta, progress, workers=1):
@@ -233,7 +180,7 @@ def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, s
 
     written = 0
     with single_threaded_blas():  # for the whole run: the same arithmetic whatever the number of workers
-        chunks = ordered_map(draw, zip(starts, chunk_seeds), workers)
+        chunks = ordered_map(draw, zip(starts, chunk_seeds), workers, CHUNKS_IN_FLIGHT)
         for _, (ids, bits, lost) in zip(progress(starts) if progress else starts, chunks):
             if backend == "mps" and not ens.is_local:
                 meta["discarded_weight"] = max(meta.get("discarded_weight", 0.0), lost)
