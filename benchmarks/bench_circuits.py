@@ -16,36 +16,23 @@ and against the full propagation of every string in its light-cone window
 """
 
 import sys
-import time
 import warnings
 
 import numpy as np
 
 warnings.filterwarnings("ignore")
 
+from bench_estimate import random_shadow, timed  # noqa: E402  (benchmarks/ is on the path of a script)
+
 from hamiltonians.spec import parse_spec  # noqa: E402
 from manybody.estimation.driver import estimate  # noqa: E402
 from manybody.estimation.setup import Chunk  # noqa: E402
-from manybody.io.shadow import Shadow  # noqa: E402
 from manybody.measure.ensembles import LocalEnsemble, ShallowEnsemble  # noqa: E402
 from manybody.measure.paulis import BASIS_PAULI, single_site_codes  # noqa: E402
 from manybody.measure.propagation import snapshot_values_windows  # noqa: E402
 
 N = 64
 SPEC = f'[lattice]\nkind = "chain"\nsize = [{N}]\n[model]\nkind = "heisenberg"\nJ = 1.0\n'
-
-
-def random_shadow(ens, n_snapshots, rng):
-    settings = ens.draw(n_snapshots, rng)
-    bits = rng.integers(0, 2, (n_snapshots, ens.n_qubits), dtype=np.uint8)
-    return Shadow(ensemble=ens, settings=settings, qubit_site=np.arange(ens.n_qubits),
-                  record_setting=settings.ids, outcomes=bits, counts=np.ones(n_snapshots, np.int64))
-
-
-def timed(fn, *a, **k):
-    t = time.perf_counter()
-    out = fn(*a, **k)
-    return out, time.perf_counter() - t
 
 
 def strings_of_chunk(n, near_pairs):
