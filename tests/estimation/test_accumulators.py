@@ -77,3 +77,19 @@ def test_robust_estimate_with_global_calibration_of_zero_state():
     # without calibration the same records are biased low by the readout flips: (1 - 2p)^2 = 0.81 for ZZ
     plain = estimate(data, None, quantities=("correlations",))
     assert np.nanmean(plain.correlation.sel(axis_a="Z", axis_b="Z").values) < 0.9
+
+
+@pytest.mark.parametrize("depth", [0, 1])
+def test_a_mutual_information_map_too_large_to_keep_is_announced(monkeypatch, depth):
+    # Several shots per setting need per-setting two-site sums; above the limit the map is left out
+    # with a RuntimeWarning that says why, never silently (the limit lowered here to reach it).
+    from manybody.estimation.accumulators import mutual_information
+
+    monkeypatch.setattr(mutual_information, "MAX_JOINT_ENTRIES", 1000)
+    n = 4
+    _, psi = exact.ground_state(tfim_model(n).hamiltonian)
+    ens = LocalEnsemble(n) if depth == 0 else ShallowEnsemble(n, depth, chain(n))
+    shadow = make_shadow(psi, ens, 40, shots=5, seed=3)
+    with pytest.warns(RuntimeWarning, match="no mutual-information map"):
+        result = estimate(shadow, None)
+    assert "mutual_information" not in result

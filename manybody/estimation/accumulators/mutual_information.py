@@ -13,6 +13,8 @@ through per-setting sums.
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 
 from manybody.estimation.accumulators.base import Accumulator, pair_count
@@ -35,10 +37,16 @@ class MutualInformation(Accumulator):
     def build(cls, setup, options):
         if not options.get("mutual_information", True) or not setup.spin_like:
             return None
+        n = setup.n_qubits
+        per_setting = setup.n_settings * ((2 if setup.local else 3) * n) ** 2  # per-setting two-site sums
+        if setup.multi and per_setting > MAX_JOINT_ENTRIES:
+            warnings.warn(f"no mutual-information map: with several shots per setting it keeps "
+                          f"{per_setting:.3g} per-setting sums ({setup.n_settings} settings of {n} qubits), above "
+                          f"the limit of {MAX_JOINT_ENTRIES:.0e}", RuntimeWarning, stacklevel=4)
+            return None
         if setup.local:
             return LocalMutualInformation(setup)
-        within_entries = setup.n_settings * (3 * setup.n_qubits) ** 2  # per-setting two-site sums
-        if options.get("correlations", True) and (not setup.multi or within_entries <= MAX_JOINT_ENTRIES):
+        if options.get("correlations", True):
             return CircuitMutualInformation(setup)
         return None
 
