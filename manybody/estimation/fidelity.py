@@ -51,6 +51,8 @@ from manybody.simulation.statevector import BASIS_ROTATIONS
 CHUNK_AMPLITUDES = 1 << 20
 #: largest target for the dense routes (shallow, global, local dense).
 MAX_DENSE_QUBITS = 20
+#: local ensemble: dense targets up to this size use the product operator, larger ones an MPS (as_mps).
+LOCAL_DENSE_QUBITS = 12
 #: shallow circuits: exact (2^n table of 1/lambda) up to this size, the fitted tensor-network inverse beyond.
 EXACT_SHALLOW_QUBITS = 14
 
@@ -314,13 +316,23 @@ def uses_network_inverse(ensemble) -> bool:
 
 
 def as_mps(target):
-    """A quimb MPS of the target (a numpy vector is split by quimb's exact SVDs)."""
+    """A quimb MPS of the target (a numpy vector is split by SVDs dropping singular values below 1e-12)."""
     if hasattr(target, "to_dense") and not isinstance(target, np.ndarray):
         return target
     import quimb.tensor as qtn
 
     psi = dense_target(target)
-    return qtn.MatrixProductState.from_dense(psi, dims=[2] * int(np.log2(len(psi))))
+    return qtn.MatrixProductState.from_dense(psi, dims=[2] * int(np.log2(len(psi))), cutoff=1e-12)
+
+
+def local_route_target(target):
+    """The target as the local ensemble's kernels want it: dense vectors above LOCAL_DENSE_QUBITS as an MPS.
+
+    The dense product operator costs O(n 2^n) per snapshot, the transfer matrices O(n chi^2).
+    """
+    if isinstance(target, np.ndarray) and target.size > 2**LOCAL_DENSE_QUBITS:
+        return as_mps(target)
+    return target
 
 
 def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bits: np.ndarray,
@@ -336,6 +348,7 @@ def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bi
     """
     if ensemble.is_local:
         basis = settings.basis[np.asarray(setting_index, dtype=np.int64)]
+        target = local_route_target(target)
         if hasattr(target, "to_dense") and not isinstance(target, np.ndarray):
             return local_fidelity_mps(target, basis, bits)
         return local_fidelity_dense(target, basis, bits)

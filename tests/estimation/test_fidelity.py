@@ -299,3 +299,19 @@ def test_bad_target_is_refused_with_one_sentence():
         fid.dense_target(np.ones(6))
     with pytest.raises(InputError, match="zero or not finite"):
         fid.dense_target(np.zeros(4))
+
+
+def test_large_dense_targets_take_the_transfer_matrices_with_the_same_values():
+    # Above LOCAL_DENSE_QUBITS a dense target is split into an MPS (SVDs, quimb); the per-snapshot
+    # values must equal the product-operator route on the same vector to rounding.
+    from manybody.estimation.fidelity import LOCAL_DENSE_QUBITS, fidelity_snapshots, local_fidelity_dense
+
+    n = LOCAL_DENSE_QUBITS + 1
+    rng = np.random.default_rng(11)
+    psi = rng.normal(size=2**n) + 1j * rng.normal(size=2**n)
+    psi /= np.linalg.norm(psi)
+    ens = LocalEnsemble(n)
+    settings = ens.draw(40, rng)
+    bits = rng.integers(0, 2, (40, n), dtype=np.uint8)
+    routed = fidelity_snapshots(psi, ens, settings, np.arange(40), bits)
+    assert np.allclose(routed, local_fidelity_dense(psi, settings.basis, bits), atol=1e-9)

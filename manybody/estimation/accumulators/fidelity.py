@@ -25,6 +25,7 @@ from manybody.estimation.fidelity import (
     fidelity_snapshots,
     local_fidelity_dense,
     local_fidelity_mps,
+    local_route_target,
     uses_network_inverse,
 )
 
@@ -39,6 +40,8 @@ class Fidelity(Accumulator):
                              "qubit); estimate this shadow without a calibration", argument="target")
         self.target, self.description = target, description
         self.inverse = None
+        if setup.local:
+            self.target = local_route_target(target)
         if uses_network_inverse(setup.ensemble):
             from manybody.estimation.shallow_network import shallow_inverse
 
