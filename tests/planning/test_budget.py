@@ -89,8 +89,11 @@ def test_cost_model_picks_many_shots_when_settings_are_expensive():
     assert dear.time.values[0] == pytest.approx(dear.settings.values[0] * (10.0 + dear.shots.values[0] * 1e-3))
 
 
-def _observed_vs_planned(depth, shots, settings, repetitions):
-    """(observed, predicted) standard deviations of the energy and of <Z2 Z3> over repetitions."""
+def _observed_vs_planned(depth, shots, settings, repetitions, seed0=0):
+    """(observed, predicted) standard deviations of the energy and of <Z2 Z3> over repetitions.
+
+    Also run with many repetitions by benchmarks/bench_planner_accuracy.py (``seed0`` there: other seeds).
+    """
     from hamiltonians import PauliExpansion
     from manybody.planning.budget import pauli_setting_variance
 
@@ -100,8 +103,8 @@ def _observed_vs_planned(depth, shots, settings, repetitions):
     ens = LocalEnsemble(6) if depth == 0 else ShallowEnsemble(6, depth, coupling_of(model))
     energies, corr = [], []
     for r in range(repetitions):
-        res = estimate(make_shadow(psi, ens, settings, shots=shots, seed=1000 * depth + 10 * shots + r), model, [],
-                       quantities=("energy", "correlations"), mutual_information=False)
+        shadow = make_shadow(psi, ens, settings, shots=shots, seed=seed0 + 1000 * depth + 10 * shots + r)
+        res = estimate(shadow, model, [], quantities=("energy", "correlations"), mutual_information=False)
         energies.append(float(res.energy))
         corr.append(float(res.correlation.sel(axis_a="Z", axis_b="Z", site_a=2, site_b=3)))
     zz = np.zeros(6, np.uint8)
