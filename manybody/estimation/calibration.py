@@ -33,62 +33,58 @@ class Calibration:
     of the snapshot values of Z on that support.
     """
 
+    #: blocks of whole calibration settings for the jackknife of ln lambda
+    BLOCKS = 20
+
     def __init__(self, shadow):
         self.ensemble = shadow.ensemble
         self.positions, self.bits = shadow.snapshots()
         self.settings = shadow.settings
-        self._cache: dict[bytes, float] = {}
-        self._deviations: dict[bytes, np.ndarray] = {}
+        used, setting = np.unique(self.positions, return_inverse=True)
+        n_blocks = int(min(self.BLOCKS, len(used)))
+        self.block = setting * n_blocks // len(used)  # contiguous runs of whole settings
+        self.block_counts = np.bincount(self.block, minlength=n_blocks).astype(float)
+        self._block_sums: dict[bytes, np.ndarray] = {}
         self.lambda_local = self.inv_local = None
         if self.ensemble.is_local:  # one factor per qubit (independent readout errors)
             n = self.ensemble.n_qubits
-            self.lambda_local = np.array([self._mean_z([q]) for q in range(n)])
+            self.lambda_local = np.array([self._mean_z(np.eye(n, dtype=bool)[q]) for q in range(n)])
             self.inv_local = 1.0 / self.lambda_local
 
-    def _mean_z(self, qubits) -> float:
-        codes = np.zeros(self.ensemble.n_qubits, dtype=np.uint8)
-        codes[list(qubits)] = 2
-        key = codes.tobytes()
-        if key not in self._cache:
+    def _sums(self, mask) -> np.ndarray:
+        """Per-block sums of the snapshot values of Z on the support ``mask`` (one propagation per support)."""
+        key = mask.tobytes()
+        if key not in self._block_sums:
+            codes = np.where(mask, 2, 0).astype(np.uint8)
             values = snapshot_values(codes, self.ensemble, self.settings, self.positions, self.bits)
-            value = float(values.mean())
-            if not value > 0:
-                raise InputError(f"the calibration shadow gives a non-positive eigenvalue ({value:.3g}) for Z on "
-                                 f"qubits {list(qubits)}; it is too noisy, too small or not of |0...0>")
-            self._cache[key] = value
-        return self._cache[key]
+            self._block_sums[key] = np.bincount(self.block, weights=values, minlength=len(self.block_counts))
+        return self._block_sums[key]
 
-    def log_lambda_deviations(self, supports, n_blocks: int = 20) -> np.ndarray:
+    def _mean_z(self, mask) -> float:
+        value = float(self._sums(mask).sum() / self.block_counts.sum())
+        if not value > 0:
+            raise InputError(f"the calibration shadow gives a non-positive eigenvalue ({value:.3g}) for Z on "
+                             f"qubits {np.flatnonzero(mask).tolist()}; it is too noisy, too small or not of |0...0>")
+        return value
+
+    def log_lambda_deviations(self, supports) -> np.ndarray:
         """Delete-one-block jackknife deviations of ln lambda_S for support masks (P, n): (B, P).
 
-        Blocks are contiguous runs of whole calibration settings; row b is
-        ln lambda_S without block b minus the mean over b, so that
-        (B - 1)/B D^T D is the jackknife covariance of the ln lambda_S. Local
-        ensemble: single-qubit supports are its parameters (lambda_S is a
-        product); circuit ensembles: one value per support, as estimated.
+        Row b is ln lambda_S without block b (of BLOCKS runs of whole
+        calibration settings) minus the mean over b, so that (B - 1)/B D^T D
+        is the jackknife covariance of the ln lambda_S. Local ensemble:
+        single-qubit supports are its parameters (lambda_S is a product);
+        circuit ensembles: one value per support, as estimated.
         """
         supports = np.atleast_2d(np.asarray(supports, dtype=bool))
-        used, setting = np.unique(self.positions, return_inverse=True)
-        b = int(min(n_blocks, len(used)))
-        block = setting * b // len(used)
-        counts = np.bincount(block, minlength=b).astype(float)
-        out = np.empty((b, len(supports)))
+        counts = self.block_counts
+        out = np.empty((len(counts), len(supports)))
         for p, mask in enumerate(supports):
-            key = mask.tobytes()
-            if key not in self._deviations:
-                codes = np.where(mask, 2, 0).astype(np.uint8)
-                values = snapshot_values(codes, self.ensemble, self.settings, self.positions, self.bits)
-                sums = np.bincount(block, weights=values, minlength=b)
-                with np.errstate(invalid="ignore", divide="ignore"):
-                    loo = np.log((sums.sum() - sums) / (counts.sum() - counts))
-                self._deviations[key] = loo - loo.mean()
-            out[:, p] = self._deviations[key]
+            sums = self._sums(mask)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                loo = np.log((sums.sum() - sums) / (counts.sum() - counts))
+            out[:, p] = loo - loo.mean()
         return out
-
-    def log_lambda_covariance(self, n_blocks: int = 20) -> np.ndarray:
-        """Local ensemble: (n, n) jackknife covariance of ln lambda_q over blocks of calibration settings."""
-        d = self.log_lambda_deviations(np.eye(self.ensemble.n_qubits, dtype=bool), n_blocks)
-        return (len(d) - 1) / len(d) * d.T @ d
 
     def eigenvalue(self, support) -> float:
         qubits = np.flatnonzero(np.asarray(support))
@@ -96,7 +92,7 @@ class Calibration:
             return 1.0
         if self.ensemble.is_local:
             return float(np.prod(self.lambda_local[qubits]))
-        return self._mean_z(qubits)
+        return self._mean_z(np.asarray(support, dtype=bool))
 
 
 def check_same_ensemble(calibration_shadow, shadow, path: str = "the calibration shadow") -> None:

@@ -74,6 +74,7 @@ class Eigenvalues:
     def __init__(self, ensemble, calibrated=None):
         self.ensemble = ensemble
         self.calibrated = calibrated  # a manybody.estimation.calibration.Calibration, or None
+        self._cache: dict[bytes, float] = {}  # support -> lambda
 
     def of(self, codes) -> float:
         return self.of_support(np.asarray(codes) != 0)
@@ -82,11 +83,10 @@ class Eigenvalues:
         """lambda of a support (boolean mask over the qubits), each support computed once per estimate."""
         support = np.asarray(support, dtype=bool)
         key = np.packbits(support).tobytes() + bytes([len(support) % 8])
-        cache = self.__dict__.setdefault("_cache", {})
-        if key not in cache:
+        if key not in self._cache:
             source = self.calibrated if self.calibrated is not None else self.ensemble
-            cache[key] = source.eigenvalue(support)
-        return cache[key]
+            self._cache[key] = source.eigenvalue(support)
+        return self._cache[key]
 
     def inv_local(self, n: int) -> np.ndarray:
         """1/lambda of each qubit for the local ensemble (3 without calibration)."""

@@ -235,7 +235,7 @@ class CircuitPurity(Purity):
                              f"at most {PAULI_VECTOR_MAX_QUBITS} qubits (the local ensemble takes any size)",
                              argument="subsystems")
         self.covers, self.members = covering_subsystems(qubits)
-        self.eigenvalue = memoized(setup.lam.of_support)  # lambda of each support met, computed once
+        self.eigenvalue = setup.lam.of_support  # each support met computed once (Eigenvalues caches it)
         self.parts = [dict() for _ in self.covers]  # cover -> block -> PauliVectorSums
         self.pending = (np.zeros(0, dtype=np.int64), np.zeros((0, setup.n_qubits), dtype=np.uint8))
 
