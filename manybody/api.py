@@ -277,11 +277,10 @@ def estimate_series(shadows, **kwargs):
     if not shadows:
         raise InputError("shadows: give at least one shadow", argument="shadows")
     if kwargs.get("scheduler") == "threads" and len(shadows) > 1:  # one task per shadow
-        from concurrent.futures import ThreadPoolExecutor
+        from manybody.threads import available_cores, ordered_map
 
         serial = {**kwargs, "scheduler": "sync"}  # no threads inside the threads
-        with ThreadPoolExecutor(max(1, min(len(shadows), os.cpu_count() or 1))) as pool:
-            results = list(pool.map(lambda s: estimate(s, **serial), shadows))
+        results = list(ordered_map(lambda s: estimate(s, **serial), shadows, available_cores()))
         return combine_series(results, [s.label for s in shadows])
     return combine_series([estimate(s, **kwargs) for s in shadows], [s.label for s in shadows])
 

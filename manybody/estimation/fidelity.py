@@ -315,9 +315,14 @@ def uses_network_inverse(ensemble) -> bool:
     return ensemble.kind == "shallow" and ensemble.n_qubits > EXACT_SHALLOW_QUBITS
 
 
+def is_mps(target) -> bool:
+    """Whether a target is a quimb MPS (anything with ``to_dense`` that is not a numpy array)."""
+    return hasattr(target, "to_dense") and not isinstance(target, np.ndarray)
+
+
 def as_mps(target):
     """A quimb MPS of the target (a numpy vector is split by SVDs dropping singular values below 1e-12)."""
-    if hasattr(target, "to_dense") and not isinstance(target, np.ndarray):
+    if is_mps(target):
         return target
     import quimb.tensor as qtn
 
@@ -336,7 +341,7 @@ def local_route_target(target):
 
 
 def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bits: np.ndarray,
-                       inverse=None) -> np.ndarray:
+                       inverse=None, inv_lambda=3.0) -> np.ndarray:
     """Per-snapshot fidelity estimates f_s (N,) for any ensemble; their mean estimates <psi|rho|psi>.
 
     ``target``: numpy state vector or quimb MPS. Local ensemble: MPS targets
@@ -344,14 +349,14 @@ def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bi
     ensemble and shallow circuits up to EXACT_SHALLOW_QUBITS: exact dense
     routes (an MPS target is made dense). Larger shallow circuits: the fitted
     inverse ``inverse`` (default :func:`shallow_network.shallow_inverse`), biased
-    by at most its ``bias_bound``.
+    by at most its ``bias_bound``. ``inv_lambda``: the local ensemble's 1/lambda
+    per qubit (3, or calibrated values).
     """
     if ensemble.is_local:
         basis = settings.basis[np.asarray(setting_index, dtype=np.int64)]
         target = local_route_target(target)
-        if hasattr(target, "to_dense") and not isinstance(target, np.ndarray):
-            return local_fidelity_mps(target, basis, bits)
-        return local_fidelity_dense(target, basis, bits)
+        kernel = local_fidelity_mps if is_mps(target) else local_fidelity_dense
+        return kernel(target, basis, bits, inv_lambda)
     if uses_network_inverse(ensemble):
         from manybody.estimation.shallow_network import shallow_fidelity_mps, shallow_inverse
 

@@ -20,14 +20,7 @@ import numpy as np
 
 from manybody.errors import InputError
 from manybody.estimation.accumulators.base import Accumulator, interval_key, put
-from manybody.estimation.fidelity import (
-    as_mps,
-    fidelity_snapshots,
-    local_fidelity_dense,
-    local_fidelity_mps,
-    local_route_target,
-    uses_network_inverse,
-)
+from manybody.estimation.fidelity import as_mps, fidelity_snapshots, local_route_target, uses_network_inverse
 
 
 class Fidelity(Accumulator):
@@ -56,14 +49,9 @@ class Fidelity(Accumulator):
 
     def add(self, chunk):
         setup = self.setup
-        if setup.local:
-            inv = setup.lam.inv_local(setup.n_qubits)
-            mps = hasattr(self.target, "to_dense") and not hasattr(self.target, "shape")
-            kernel = local_fidelity_mps if mps else local_fidelity_dense
-            values = kernel(self.target, chunk.basis, chunk.bits, inv)
-        else:
-            values = fidelity_snapshots(self.target, setup.ensemble, chunk.settings, chunk.where, chunk.bits,
-                                        inverse=self.inverse)
+        inv = setup.lam.inv_local(setup.n_qubits) if setup.local else None
+        values = fidelity_snapshots(self.target, setup.ensemble, chunk.settings, chunk.where, chunk.bits,
+                                    inverse=self.inverse, inv_lambda=inv)
         self.sums.add("fidelity", chunk.onehot, values)
 
     def estimates(self, s):
