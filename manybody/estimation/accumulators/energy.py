@@ -116,11 +116,9 @@ class Energy(Accumulator):
         mean = self.sums.data["terms"].sum(axis=0) / counts["n"].sum()  # (T,)
         if self.setup.local:
             support = (self.codes != 0).astype(float)  # (T, n)
-        else:
-            supports = self.calibration_supports()
-            _, which = np.unique(np.vstack([supports, self.codes != 0]), axis=0, return_inverse=True)
-            which = np.asarray(which).ravel()
-            support = (which[len(supports):, None] == which[None, :len(supports)]).astype(float)  # (T, P)
+        else:  # term t divides by lambda of its own support, the row ``which[t]`` of calibration_supports()
+            supports, which = np.unique(self.codes != 0, axis=0, return_inverse=True)
+            support = np.eye(len(supports))[np.asarray(which).ravel()]  # (T, P)
         return {"energy": -(self.coeffs * mean) @ support,
                 "energy_density": -(self.density * mean[:, None]).T @ support}
 
