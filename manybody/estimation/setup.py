@@ -17,7 +17,7 @@ import numpy as np
 
 from manybody.errors import InputError
 from manybody.estimation.kernels import local_columns
-from manybody.estimation.sums import block_runs
+from manybody.estimation.sums import block_grams, block_runs
 from manybody.measure.paulis import BASIS_PAULI, single_site_codes
 
 
@@ -219,6 +219,11 @@ class Chunk:
             return local_columns(self.basis, self.bits, setup.lam.inv_local(n), np.float32 if exact32 else np.float64)
         codes = np.array([single_site_codes(q, a, n) for a in range(3) for q in range(n)])
         return self.values_many(codes).reshape(len(self.pos), 3, n)
+
+    @cached_property
+    def column_grams(self) -> list:
+        """(block, f^T f) of the one-site columns per run of one block: shared by correlations and MI maps."""
+        return block_grams(self.runs, self.columns.reshape(len(self), -1))
 
     @cached_property
     def near_values(self) -> np.ndarray:

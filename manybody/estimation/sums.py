@@ -39,13 +39,23 @@ class BlockSums:
 
     def add_gram(self, name, runs, values):
         """Per block, values[run]^T values[run] over the rows of that block (runs: (block, rows) pairs)."""
-        dim = values.shape[1]
+        self.add_grams(name, block_grams(runs, values), values.shape[1])
+
+    def add_grams(self, name, grams, dim: int):
+        """Add (block, dim x dim matrix) pairs, e.g. from :func:`block_grams`, to their blocks."""
         if name not in self.data:
             self.data[name] = np.zeros((self.n_blocks, dim, dim))
         acc = self.data[name]
-        for b, rows in runs:
-            part = values[rows]
-            acc[b] += part.T @ part  # float32 chunks: exact for integer-valued entries below 2^24
+        for b, gram in grams:
+            acc[b] += gram
+
+
+def block_grams(runs, values) -> list:
+    """(block, values[rows]^T values[rows]) for each run of rows of one block (runs: (block, rows) pairs).
+
+    float32 values: the products are exact for integer-valued entries below 2^24.
+    """
+    return [(b, values[rows].T @ values[rows]) for b, rows in runs]
 
 
 class PerSetting:

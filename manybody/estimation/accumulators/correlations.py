@@ -54,7 +54,7 @@ class Correlations(Accumulator):
             return
         if self.setup.multi:
             self.per_setting.add("mag", chunk.pos, flat)
-        self.sums.add_gram("corr", chunk.runs, flat)
+        self.sums.add_grams("corr", chunk.column_grams, flat.shape[1])
         if self.near_pairs:
             self.sums.add("near", chunk.onehot, chunk.near_values)
             self.seen_near |= np.any(chunk.near_values != 0, axis=0)

@@ -142,8 +142,8 @@ class LocalMutualInformation(MutualInformation):
         n = self.setup.n_qubits
         f = chunk.columns  # (N, 3, n): float32 where exact
         self.sums.add("mi_mag", chunk.onehot, f)
-        self.sums.add_gram("mi_corr", chunk.runs, f.reshape(len(chunk), -1))
-        if self.setup.multi and self.setup.n_settings * (2 * n) ** 2 <= MAX_JOINT_ENTRIES:
+        self.sums.add_grams("mi_corr", chunk.column_grams, 3 * n)
+        if self.setup.multi:  # build() left out maps whose per-setting sums exceed MAX_JOINT_ENTRIES
             o2 = np.zeros((len(chunk), 2 * n))
             o2[np.arange(len(chunk))[:, None], 2 * np.arange(n) + chunk.bits] = 1.0
             step = max(1, int(4e6 // (2 * n) ** 2))  # bounded temporaries of shots x (2n)^2
@@ -172,7 +172,7 @@ class LocalMutualInformation(MutualInformation):
 
     def pair_purities(self, s):
         if self.setup.multi and "mi_within" not in s:
-            return None  # too many settings to keep their joint outcome counts
+            return None  # no per-setting joint counts were added (no records)
         n = self.setup.n_qubits
         return mi_purities(s, n, self.setup.lam.inv_local(n), pair_count(s))
 
@@ -184,7 +184,7 @@ class CircuitMutualInformation(MutualInformation):
         f = chunk.columns
         flat = f.reshape(len(chunk), -1)
         self.sums.add("mag", chunk.onehot, f)
-        self.sums.add_gram("corr", chunk.runs, flat)
+        self.sums.add_grams("corr", chunk.column_grams, flat.shape[1])
         near = chunk.near_values if self.setup.near_pairs else None
         if near is not None:
             self.sums.add("near", chunk.onehot, near)
