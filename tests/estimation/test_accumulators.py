@@ -82,7 +82,8 @@ def test_robust_estimate_with_global_calibration_of_zero_state():
 @pytest.mark.parametrize("depth", [0, 1])
 def test_a_mutual_information_map_too_large_to_keep_is_announced(monkeypatch, depth):
     # Several shots per setting need per-setting two-site sums; above the limit the map is left out
-    # with a RuntimeWarning that says why, never silently (the limit lowered here to reach it).
+    # with a RuntimeWarning that says why, never silently (the limit lowered here to reach it; a check of
+    # behaviour, no outside source).
     from manybody.estimation.accumulators import mutual_information
 
     monkeypatch.setattr(mutual_information, "MAX_JOINT_ENTRIES", 1000)

@@ -98,7 +98,8 @@ def test_shot_pieces_repeat_every_record_its_count():
 
 
 def test_series_on_threads_equals_the_series_in_this_thread():
-    # A quench series runs one shadow per thread; each result must equal the one-thread estimate exactly.
+    # A quench series runs one shadow per thread; each result must equal the one-thread estimate exactly
+    # (a reproducibility check of our own scheduling, no outside source).
     import manybody as mb
 
     model = tfim_model(N)
