@@ -136,10 +136,16 @@ def _propagate_windows(codes, sites, steps, gates, n_settings: int):
 @lru_cache(maxsize=16)
 def _factor_windows(factor_bytes: bytes, n: int, gate_qubit_bytes: bytes):
     """light_cone_windows of one-site strings, kept across chunks (the layout repeats for every chunk)."""
+    codes = _factor_codes(factor_bytes, n)
+    return light_cone_windows(codes, np.frombuffer(gate_qubit_bytes, dtype=np.int64).reshape(-1, 2))
+
+
+def _factor_codes(factor_bytes: bytes, n: int) -> np.ndarray:
+    """One-site strings (F, n) from the bytes of (F, 2) int64 factors (qubit, code)."""
     factors = np.frombuffer(factor_bytes, dtype=np.int64).reshape(-1, 2)
     codes = np.zeros((len(factors), n), dtype=np.uint8)
     codes[np.arange(len(factors)), factors[:, 0]] = factors[:, 1]
-    return light_cone_windows(codes, np.frombuffer(gate_qubit_bytes, dtype=np.int64).reshape(-1, 2))
+    return codes
 
 
 def one_site_images(factors: np.ndarray, n: int, gates: np.ndarray | None, gate_qubits):
@@ -164,11 +170,9 @@ def one_site_images(factors: np.ndarray, n: int, gates: np.ndarray | None, gate_
 @lru_cache(maxsize=2)
 def _propagated_images(factor_bytes, n, gate_qubit_bytes, gate_bytes, gate_dtype, gate_shape):
     """one_site_images with gates, from the bytes of its arguments (the cache key is their full content)."""
-    factors = np.frombuffer(factor_bytes, dtype=np.int64).reshape(-1, 2)
     sites, steps = _factor_windows(factor_bytes, n, gate_qubit_bytes)
     gates = np.frombuffer(gate_bytes, dtype=gate_dtype).reshape(gate_shape)
-    codes = np.zeros((len(factors), n), dtype=np.uint8)
-    codes[np.arange(len(factors)), factors[:, 0]] = factors[:, 1]
+    codes = _factor_codes(factor_bytes, n)
     win, sign = _propagate_windows(codes, sites, steps, gates, len(gates))
     out = _pack_windows(sites, win, n) + (sign.T.copy(),)
     for a in out:
