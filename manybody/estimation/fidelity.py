@@ -44,6 +44,7 @@ from manybody.errors import InputError
 from manybody.estimation.stabilizer import support_eigenvalues, walsh_hadamard
 from manybody.measure.clifford import clifford_table
 from manybody.measure.paulis import BASIS_PAULI
+from manybody.measure.propagation import pull_back_layers
 from manybody.simulation.sampling import mps_site_tensors, rotate_dense
 from manybody.simulation.statevector import BASIS_ROTATIONS
 
@@ -214,12 +215,7 @@ def stabilizer_supports(ensemble, settings) -> np.ndarray:
     k = len(settings)
     codes = np.zeros((k, n, n), dtype=np.uint8)  # [setting, generator j, qubit]
     codes[:, np.arange(n), np.arange(n)] = BASIS_PAULI[settings.basis]
-    if settings.gates is not None and settings.gates.shape[1]:
-        inverse = np.argsort(clifford_table(2).conj_code, axis=1).astype(np.uint8)  # C^dag Q C codes
-        for slot in range(len(ensemble.gate_qubits) - 1, -1, -1):
-            a, b = ensemble.gate_qubits[slot]
-            new = inverse[settings.gates[:, slot, None], codes[..., a] + 4 * codes[..., b]]
-            codes[..., a], codes[..., b] = new & 3, new >> 2
+    pull_back_layers(codes, settings.gates, getattr(ensemble, "gate_qubits", ()))  # local: no gates
     weights = 1 << np.arange(n - 1, -1, -1, dtype=np.int64)
     gx, gz = (codes & 1).astype(np.int64) @ weights, (codes >> 1).astype(np.int64) @ weights  # (K, n)
     xs = np.zeros((k, 1), dtype=np.int64)

@@ -49,6 +49,7 @@ from scipy.linalg import cho_factor, cho_solve
 from manybody.errors import InputError
 from manybody.measure.clifford import clifford_table
 from manybody.measure.eigenvalues import FINAL_WEIGHT, GATE_TRANSITION
+from manybody.measure.propagation import pull_back_layers
 from manybody.simulation.sampling import mps_site_tensors
 from manybody.simulation.statevector import BASIS_ROTATIONS
 
@@ -290,13 +291,7 @@ def flip_generators(ensemble, settings) -> np.ndarray:
     n, k = ensemble.n_qubits, len(settings)
     codes = np.zeros((k, n, n), dtype=np.uint8)
     codes[:, np.arange(n), np.arange(n)] = _rotated_x_codes()[settings.basis]
-    if settings.gates is not None and settings.gates.shape[1]:
-        inverse = np.argsort(clifford_table(2).conj_code, axis=1).astype(np.uint8)
-        for slot in range(len(ensemble.gate_qubits) - 1, -1, -1):
-            a, b = ensemble.gate_qubits[slot]
-            new = inverse[settings.gates[:, slot, None], codes[..., a] + 4 * codes[..., b]]
-            codes[..., a], codes[..., b] = new & 3, new >> 2
-    return codes
+    return pull_back_layers(codes, settings.gates, ensemble.gate_qubits)
 
 
 def setting_states(ensemble, settings) -> list[np.ndarray]:

@@ -45,6 +45,25 @@ def propagate_layers(codes: np.ndarray, gates: np.ndarray, gate_qubits: np.ndarr
     return out, sign
 
 
+def pull_back_layers(codes: np.ndarray, gates: np.ndarray | None, gate_qubits) -> np.ndarray:
+    """C^dag Q C for strings Q (K, ..., n) of every setting (signs dropped), gate slots in reverse order.
+
+    ``gates`` (K, G) Clifford indices; the inverse of the Clifford table's
+    conjugation map gives C^dag Q C per gate. Used to find the generators
+    U^dag P_j U of a snapshot's stabilizer group (P_j one-site, already taken
+    back through the basis rotation). ``codes`` is updated in place and returned.
+    """
+    if gates is None or gates.shape[1] == 0:
+        return codes
+    inverse = np.argsort(clifford_table(2).conj_code, axis=1).astype(np.uint8)
+    per_setting = (-1,) + (1,) * (codes.ndim - 2)  # a setting's gate broadcast over its strings
+    for slot in range(len(gate_qubits) - 1, -1, -1):
+        a, b = gate_qubits[slot]
+        new = inverse[gates[:, slot].reshape(per_setting), codes[..., a] + 4 * codes[..., b]]
+        codes[..., a], codes[..., b] = new & 3, new >> 2
+    return codes
+
+
 #: settings x strings x qubits handled at once when propagating inside light-cone windows
 WINDOW_ENTRIES = 1 << 24
 #: snapshots x strings x 64-bit words handled at once when evaluating packed images
