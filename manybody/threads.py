@@ -8,9 +8,13 @@ in order; at most a few results per worker wait, so memory stays flat.
 from __future__ import annotations
 
 import os
+import threading
 from collections import deque
 from concurrent.futures import ThreadPoolExecutor
 from contextlib import contextmanager
+
+#: marks the threads of an ordered_map pool while they work (see spare_workers)
+_WORKER = threading.local()
 
 
 def available_cores() -> int:
@@ -19,6 +23,27 @@ def available_cores() -> int:
         return len(os.sched_getaffinity(0))
     except AttributeError:  # not on every platform
         return os.cpu_count() or 1
+
+
+def spare_workers() -> int:
+    """Threads a kernel may start from here: 1 inside a worker of :func:`ordered_map`, else the available cores.
+
+    A kernel called from a pool that already keeps every core busy (parts of
+    the records estimated side by side) runs in its own thread; called from the
+    main thread (one part, or a notebook) it may share its work among the cores.
+    """
+    return 1 if getattr(_WORKER, "busy", False) else available_cores()
+
+
+def _as_worker(fn):
+    """fn, marked while it runs as work of a pool thread (see :func:`spare_workers`)."""
+    def run(item):
+        _WORKER.busy = True
+        try:
+            return fn(item)
+        finally:
+            _WORKER.busy = False
+    return run
 
 
 @contextmanager
@@ -67,5 +92,6 @@ def ordered_map(fn, items, workers: int, ahead: int = 2):
     if workers <= 1:
         yield from map(fn, items)
         return
+    fn = _as_worker(fn)
     with ThreadPoolExecutor(max_workers=workers) as pool:
         yield from ordered_results(lambda item: pool.submit(fn, item), items, ahead * workers)

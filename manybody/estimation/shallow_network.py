@@ -52,6 +52,7 @@ from manybody.measure.eigenvalues import FINAL_WEIGHT, GATE_TRANSITION
 from manybody.measure.propagation import pull_back_layers
 from manybody.simulation.sampling import mps_site_tensors
 from manybody.simulation.statevector import BASIS_ROTATIONS
+from manybody.threads import ordered_map, single_threaded_blas, spare_workers
 
 #: singular values below this fraction of the largest are dropped (exact MPS up to rounding).
 EXACT_CUTOFF = 1e-13
@@ -59,8 +60,8 @@ EXACT_CUTOFF = 1e-13
 EXHAUSTIVE_QUBITS = 16
 #: random patterns drawn when the residual cannot be checked exhaustively.
 SAMPLED_PATTERNS = 1 << 16
-#: snapshots per chunk are limited so that an environment array stays near this size
-CHUNK_BYTES = 1 << 28
+#: snapshots per chunk are limited so that a chunk's environments stay near this size (the L3 cache)
+CHUNK_BYTES = 1 << 25
 #: chi_phi^2 assumed for that limit (its mean is about 5 at depth 3, so this is generous)
 TYPICAL_PHI_BOND = 4
 #: ridge on the unit diagonal of the scaled normal equations of the fit.
@@ -343,46 +344,75 @@ def compress_states(tensors) -> tuple[list[np.ndarray], np.ndarray]:
     return tensors, ranks
 
 
-def _site_step(env, ket, phi, g_pair):
+#: per-qubit maps of (g bond, phi bonds) up to this many rows x columns are applied as one dense matrix
+DENSE_MAP_ENTRIES = 1 << 12
+
+
+def _qubit_map(phi, g_keep, g_trace):
+    """The qubit's map of (d, c, c', y) to (D, C, C', x) for each snapshot, or its two Kronecker factors.
+
+    Keep part: g1[d, D] phi[c, x, C] phi^*[c', y, C']; trace part:
+    (g0 - g1)[d, D]/2 delta(x, y) sum_u phi[c, u, C] phi^*[c', u, C'].
+    Returns ("dense", m) with m[s] of shape (D C C' x, d c c' y) when that
+    matrix is small, else ("kron", keep, trace) with the phi factors only
+    (s, C C' x, c c' y); the g factors are applied separately then.
+    """
+    s, c, _, cr = phi.shape
+    keep = np.einsum("scxC,sdyD->sCDxcdy", phi, phi.conj()).reshape(s, cr * cr * 2, c * c * 2)
+    both = np.einsum("scuC,sduD->sCDcd", phi, phi.conj())
+    trace = np.einsum("sCDcd,xy->sCDxcdy", both, np.eye(2)).reshape(s, cr * cr * 2, c * c * 2)
+    dl, dr = g_keep.shape
+    if dl * dr * keep.shape[1] * keep.shape[2] > DENSE_MAP_ENTRIES:
+        return "kron", keep, trace
+    m = np.einsum("dD,sij->sDidj", g_keep, keep) + np.einsum("dD,sij->sDidj", g_trace, trace)
+    return "dense", m.reshape(s, dr * keep.shape[1], dl * keep.shape[2])
+
+
+def _site_step(env, kety, bra_rows, phi, g_keep, g_trace):
     """One qubit of <psi| G(|phi><phi|) |psi> for a group of snapshots of equal bonds.
 
-    env[k, s, c, c', a', a] (bonds of g, phi, phi^*, bra, ket) -> the same after
-    the qubit. Keep part: g1 sum psi^*[a', x] phi[c, x] phi^*[c', y] psi[a, y];
-    trace part: (g0 - g1)/2 sum_x psi^*[a', x] psi[a, x] sum_u phi[c, u] phi^*[c', u].
-    The target's ket and bra and the g bond are one matrix product each over
-    the whole group; phi enters through a small per-snapshot matrix mapping
-    (c, c', x) to (C, C', x'), applied as a batched product.
-    ``g_pair`` is (g1^T; (g0 - g1)^T / 2), shape (2D, D).
+    env[s, d, c, c', a', a] (snapshot; bonds of g, phi, phi^*, bra, ket) ->
+    the same after the qubit. ``kety`` is the target's tensor as (y, a, A),
+    ``bra_rows`` its conjugate as (A', x a'). Three products, all through
+    BLAS: the ket (batched over s d c c'), the qubit's map of (d, c, c', y)
+    per snapshot (:func:`_qubit_map`), and the bra (batched over s D C C'),
+    which leaves the result in the layout it started from.
     """
-    d, s, c, c2, bra, kt = env.shape
-    right, cr = ket.shape[2], phi.shape[3]
-    x = (env.reshape(-1, kt) @ ket.reshape(kt, -1)).reshape(d, s, c, c2, bra, 2, right)
-    x = x.transpose(0, 1, 2, 3, 5, 4, 6).reshape(d, -1)  # [k, s, c, c', y, a', A]
-    x = (g_pair @ x).reshape(2, -1, s, c * c2 * 2, bra * right)
-    keep = np.einsum("scxC,sdyD->sCDxcdy", phi, phi.conj()).reshape(s, cr * cr * 2, c * c2 * 2)
-    both = np.einsum("scuC,sduD->scdCD", phi, phi.conj())
-    trace = np.einsum("scdCD,xy->sCDxcdy", both, np.eye(2)).reshape(s, cr * cr * 2, c * c2 * 2)
-    # a plain einsum loop: numpy's broadcast matmul over (K, s) takes a slow non-BLAS path here
-    pre = np.einsum("sij,ksjr->ksir", keep, x[0]) + np.einsum("sij,ksjr->ksir", trace, x[1])  # [K,s,(C C' x),(a' A)]
-    pre = pre.reshape(-1, 2, bra, right).transpose(0, 3, 2, 1).reshape(-1, bra * 2)
-    out = (pre @ ket.conj().reshape(bra * 2, right)).reshape(-1, right, right)  # [.., A, A']
-    return out.transpose(0, 2, 1).reshape(-1, s, cr, cr, right, right)
+    s, d, c, c2, bra, kt = env.shape
+    right, cr, dr = kety.shape[2], phi.shape[3], g_keep.shape[1]
+    x = np.matmul(env.reshape(-1, 1, bra, kt), kety)  # [s d c c', y, a', A]
+    x = x.reshape(s, d * c * c2 * 2, bra * right)
+    kind, *maps = _qubit_map(phi, g_keep, g_trace)
+    if kind == "dense":
+        out = np.matmul(maps[0], x)  # [s, (D C C' x), (a' A)]
+    else:
+        keep, trace = maps
+        g_pair = np.concatenate([g_keep.T, g_trace.T])  # (2D, d)
+        xg = np.matmul(g_pair, x.reshape(s, d, -1)).reshape(s, 2, dr, c * c2 * 2, bra * right)
+        out = np.matmul(keep[:, None], xg[:, 0])
+        out += np.matmul(trace[:, None], xg[:, 1])
+    out = np.matmul(bra_rows, out.reshape(-1, 2 * bra, right))  # [s D C C', A', A]
+    return out.reshape(s, dr, cr, cr, right, right)
 
 
 def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
     """<psi| G(|phi_i><phi_i|) |psi> for every snapshot i, phi_i = P_i phi_(setting of i): (S,).
 
-    Snapshots are grouped, qubit by qubit, by the bonds of their phi on both
-    sides of the qubit, so no work is spent on padding; within a group
-    everything is a batched matrix product. P_i = X^x Z^z per qubit (its
-    phase cancels in |phi><phi|) acts on phi's physical index.
+    ``kets`` are the target's tensors as (left, physical, right). Snapshots are
+    grouped, qubit by qubit, by the bonds of their phi on both sides of the
+    qubit, so no work is spent on padding; within a group everything is a
+    batched matrix product. P_i = X^x Z^z per qubit (its phase cancels in
+    |phi><phi|) acts on phi's physical index.
     """
     count = len(which)
     snap_rank = ranks[which]
     sign = 1 - 2 * flip_z.astype(np.int8)
-    envs = {1: (np.arange(count), np.ones((1, count, 1, 1, 1, 1), dtype=complex))}
+    envs = {1: (np.arange(count), np.ones((count, 1, 1, 1, 1, 1), dtype=complex))}
     for q, ket in enumerate(kets):
-        g_pair = np.concatenate([g[q][:, 1, :].T, 0.5 * (g[q][:, 0, :] - g[q][:, 1, :]).T]).astype(complex)
+        kety = np.ascontiguousarray(ket.transpose(1, 0, 2))
+        bra_rows = np.ascontiguousarray(ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1))
+        g_keep = g[q][:, 1, :].astype(complex)
+        g_trace = 0.5 * (g[q][:, 0, :] - g[q][:, 1, :]).astype(complex)
         parts: dict = {}
         for left, (rows, env) in envs.items():
             right_of = snap_rank[rows, q + 1]
@@ -392,8 +422,9 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
                 f = phi[q][which[r_sel], :left, :, :right].copy()
                 f[:, :, 1] *= sign[r_sel, q, None, None]
                 f = np.where(flip_x[r_sel, q, None, None, None], f[:, :, ::-1], f)
-                parts.setdefault(int(right), []).append((r_sel, _site_step(env[:, sel], ket, f, g_pair)))
-        envs = {r: (np.concatenate([p[0] for p in ps]), np.concatenate([p[1] for p in ps], axis=1))
+                parts.setdefault(int(right), []).append((r_sel, _site_step(env[sel], kety, bra_rows, f,
+                                                                           g_keep, g_trace)))
+        envs = {r: (np.concatenate([p[0] for p in ps]), np.concatenate([p[1] for p in ps]))
                 for r, ps in parts.items()}
     rows, env = envs[1]
     out = np.empty(count)
@@ -402,16 +433,20 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
 
 
 def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, setting_index, bits,
-                         chunk: int = 256) -> np.ndarray:
+                         chunk: int = 8, workers: int | None = None) -> np.ndarray:
     """f_i = <psi| G(U_i^dag|b_i><b_i|U_i) |psi> for shallow snapshots and an MPS target: (N,).
 
     ``inverse`` from :func:`shallow_inverse` (g ~ 1/lambda, bias at most
     ``inverse.bias_bound``); ``target`` a quimb MPS or (left, right, physical)
     right-canonical tensors; ``setting_index`` (N,) positions in ``settings``;
     ``bits`` (N, n). Snapshots are taken setting by setting in chunks of at most
-    ``chunk`` (fewer for large bonds, see CHUNK_BYTES): per distinct setting U^dag|0> is built once, per snapshot only
-    P_b = U^dag X^b U (XOR of the flip generators selected by b) and the
-    sweep of :func:`_sandwich`.
+    ``chunk`` (fewer for large bonds, see CHUNK_BYTES, so that a chunk's
+    environments stay in the processor's cache): per distinct setting of a
+    chunk U^dag|0> is built once, per snapshot only P_b = U^dag X^b U (XOR of
+    the flip generators selected by b) and the sweep of :func:`_sandwich`.
+    Chunks run on ``workers`` threads (default: the spare cores, see
+    manybody.threads) with BLAS on one thread; each chunk is computed alone,
+    so the values do not depend on the number of threads.
     """
     tensors = target if isinstance(target, (list, tuple)) else mps_site_tensors(target)
     n = ensemble.n_qubits
@@ -422,17 +457,23 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     setting_index = np.asarray(setting_index, dtype=np.int64)
     bits = np.asarray(bits, dtype=np.int64)
     order = np.argsort(setting_index, kind="stable")
-    out = np.empty(len(setting_index))
     chi = max(max(a.shape[:2]) for a in tensors)
     bond = max(a.shape[0] for a in inverse.inverse)
     chunk = max(1, min(chunk, CHUNK_BYTES // (16 * 2 * TYPICAL_PHI_BOND**2 * bond * chi**2)))
-    for start in range(0, len(order), chunk):
-        rows = order[start:start + chunk]
+
+    def one(rows):
         distinct, which = np.unique(setting_index[rows], return_inverse=True)
         sub = settings.take(distinct)
         phi, ranks = compress_states(setting_states(ensemble, sub))
         gen = flip_generators(ensemble, sub)[which]  # (S, j, qubit)
         flip_x = np.einsum("sj,sjq->sq", bits[rows], (gen & 1).astype(np.int64)) & 1
         flip_z = np.einsum("sj,sjq->sq", bits[rows], (gen >> 1).astype(np.int64)) & 1
-        out[rows] = _sandwich(kets, phi, ranks, inverse.inverse, which, flip_x.astype(bool), flip_z)
+        return _sandwich(kets, phi, ranks, inverse.inverse, which, flip_x.astype(bool), flip_z)
+
+    out = np.empty(len(setting_index))
+    chunks = [order[start:start + chunk] for start in range(0, len(order), chunk)]
+    workers = spare_workers() if workers is None else workers
+    with single_threaded_blas():
+        for rows, values in zip(chunks, ordered_map(one, chunks, min(workers, len(chunks)))):
+            out[rows] = values
     return out

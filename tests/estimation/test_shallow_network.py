@@ -202,3 +202,22 @@ def test_depth_zero_is_the_local_estimator():
     assert inv.max_residual < 1e-10  # rounding only
     got = sn.shallow_fidelity_mps(inv, target, ens, settings, np.arange(40), bits)
     np.testing.assert_allclose(got, fid.local_fidelity_mps(target, settings.basis, bits), atol=1e-9)
+
+
+def test_threads_share_the_chunks_without_changing_a_bit():
+    # our own behaviour (no outside source): each chunk is computed alone, so one thread or two give
+    # the same numbers; inside a pool's worker a kernel starts no threads of its own
+    from manybody.threads import ordered_map, spare_workers
+
+    n = 10
+    ens = ShallowEnsemble(n, 3, chain(n))
+    target = qtn.MPS_rand_state(n, 4, dtype=complex, seed=8)
+    rng = np.random.default_rng(9)
+    settings = ens.draw(12, rng)
+    bits, _ = sample_mps(target, ens, settings, 2, rng)
+    idx = np.repeat(np.arange(12), 2)
+    inv = sn.shallow_inverse(ens, bond=4)
+    one = sn.shallow_fidelity_mps(inv, target, ens, settings, idx, bits, chunk=3, workers=1)
+    two = sn.shallow_fidelity_mps(inv, target, ens, settings, idx, bits, chunk=3, workers=2)
+    np.testing.assert_array_equal(one, two)
+    assert list(ordered_map(lambda _: spare_workers(), range(3), workers=2)) == [1, 1, 1]
