@@ -345,25 +345,41 @@ def compress_states(tensors) -> tuple[list[np.ndarray], np.ndarray]:
 
 
 #: per-qubit maps of (g bond, phi bonds) up to this many rows x columns are applied as one dense matrix
-DENSE_MAP_ENTRIES = 1 << 12
+DENSE_MAP_ENTRIES = 1 << 14
+#: a + ib acting on (re, im) planes: [[a, -b], [b, a]]
+_PLANE_REAL, _PLANE_IMAG = np.eye(2), np.array([[0.0, -1.0], [1.0, 0.0]])
 
 
-def _qubit_map(phi, g_keep, g_trace):
+def _on_planes(m, inner: int = 2):
+    """A complex map (s, R' x, R y) as a real one on (re, im) planes: (s, R' 2 x, R 2 y), x and y of size ``inner``."""
+    s, rows, cols = m.shape
+    m = m.reshape(s, rows // inner, 1, inner, cols // inner, 1, inner)
+    out = m.real * _PLANE_REAL[:, None, None, :, None] + m.imag * _PLANE_IMAG[:, None, None, :, None]
+    return out.reshape(s, 2 * rows, 2 * cols)
+
+
+def _qubit_map(phi, g_keep, g_trace, planes: int):
     """The qubit's map of (d, c, c', y) to (D, C, C', x) for each snapshot, or its two Kronecker factors.
 
     Keep part: g1[d, D] phi[c, x, C] phi^*[c', y, C']; trace part:
     (g0 - g1)[d, D]/2 delta(x, y) sum_u phi[c, u, C] phi^*[c', u, C'].
     Returns ("dense", m) with m[s] of shape (D C C' x, d c c' y) when that
-    matrix is small, else ("kron", keep, trace) with the phi factors only
-    (s, C C' x, c c' y); the g factors are applied separately then.
+    matrix is small, else ("kron", keep, both) with the phi factors only,
+    keep (s, C C' x, c c' y) and both (s, C C', c c') of the trace part (the
+    identity on x = y); the g factors (real) are applied separately then.
+    With ``planes`` = 2 the maps act on real (re, im) planes placed before x and y.
     """
     s, c, _, cr = phi.shape
     keep = np.einsum("scxC,sdyD->sCDxcdy", phi, phi.conj()).reshape(s, cr * cr * 2, c * c * 2)
-    both = np.einsum("scuC,sduD->sCDcd", phi, phi.conj())
-    trace = np.einsum("sCDcd,xy->sCDxcdy", both, np.eye(2)).reshape(s, cr * cr * 2, c * c * 2)
+    both = np.einsum("scuC,sduD->sCDcd", phi, phi.conj()).reshape(s, cr * cr, c * c)
+    if planes == 2:
+        keep = _on_planes(keep)
     dl, dr = g_keep.shape
-    if dl * dr * keep.shape[1] * keep.shape[2] > DENSE_MAP_ENTRIES:
-        return "kron", keep, trace
+    if dl * dr * keep.shape[1] * keep.shape[2] > DENSE_MAP_ENTRIES * planes**2:
+        return "kron", keep, (_on_planes(both, 1) if planes == 2 else both)
+    trace = np.einsum("sij,xy->sixjy", both, np.eye(2)).reshape(keep.shape[0], cr * cr * 2, c * c * 2)
+    if planes == 2:
+        trace = _on_planes(trace)
     m = np.einsum("dD,sij->sDidj", g_keep, keep) + np.einsum("dD,sij->sDidj", g_trace, trace)
     return "dense", m.reshape(s, dr * keep.shape[1], dl * keep.shape[2])
 
@@ -371,34 +387,39 @@ def _qubit_map(phi, g_keep, g_trace):
 def _site_step(env, kety, bra_rows, phi, g_keep, g_trace):
     """One qubit of <psi| G(|phi><phi|) |psi> for a group of snapshots of equal bonds.
 
-    env[s, d, c, c', a', a] (snapshot; bonds of g, phi, phi^*, bra, ket) ->
-    the same after the qubit. ``kety`` is the target's tensor as (y, a, A),
-    ``bra_rows`` its conjugate as (A', x a'). Three products, all through
-    BLAS: the ket (batched over s d c c'), the qubit's map of (d, c, c', y)
-    per snapshot (:func:`_qubit_map`), and the bra (batched over s D C C'),
-    which leaves the result in the layout it started from.
+    env[s, d, c, c', p, a', a] (snapshot; bonds of g, phi, phi^*; plane; bonds
+    of bra and ket) -> the same after the qubit. ``kety`` is the target's
+    tensor as (y, a, A), ``bra_rows`` its conjugate as (A', x a'). For a
+    complex target there is one complex plane; for a real one the environment
+    is real with two planes (re, im), so the target's products cost half.
+    Three products, all through BLAS: the ket (batched over s d c c' p), the
+    qubit's map of (d, c, c', p, y) per snapshot (:func:`_qubit_map`), and the
+    bra (batched over s D C C' p), which leaves the result in the layout it
+    started from.
     """
-    s, d, c, c2, bra, kt = env.shape
+    s, d, c, c2, planes, bra, kt = env.shape
     right, cr, dr = kety.shape[2], phi.shape[3], g_keep.shape[1]
-    x = np.matmul(env.reshape(-1, 1, bra, kt), kety)  # [s d c c', y, a', A]
-    x = x.reshape(s, d * c * c2 * 2, bra * right)
-    kind, *maps = _qubit_map(phi, g_keep, g_trace)
+    x = np.matmul(env.reshape(-1, 1, bra, kt), kety)  # [s d c c' p, y, a', A]
+    x = x.reshape(s, d * c * c2 * planes * 2, bra * right)
+    kind, *maps = _qubit_map(phi, g_keep, g_trace, planes)
     if kind == "dense":
-        out = np.matmul(maps[0], x)  # [s, (D C C' x), (a' A)]
+        out = np.matmul(maps[0], x)  # [s, (D C C' p x), (a' A)]
     else:
-        keep, trace = maps
         g_pair = np.concatenate([g_keep.T, g_trace.T])  # (2D, d)
-        xg = np.matmul(g_pair, x.reshape(s, d, -1)).reshape(s, 2, dr, c * c2 * 2, bra * right)
+        xg = np.matmul(g_pair, x.reshape(s, d, -1)).reshape(s, 2, dr, c * c2 * planes * 2, bra * right)
+        keep, both = maps
         out = np.matmul(keep[:, None], xg[:, 0])
-        out += np.matmul(trace[:, None], xg[:, 1])
-    out = np.matmul(bra_rows, out.reshape(-1, 2 * bra, right))  # [s D C C', A', A]
-    return out.reshape(s, dr, cr, cr, right, right)
+        # the trace part: ``both`` on (c c' p), the identity on x = y
+        out += np.matmul(both[:, None], xg[:, 1].reshape(s, dr, -1, 2 * bra * right)).reshape(out.shape)
+    out = np.matmul(bra_rows, out.reshape(-1, 2 * bra, right))  # [s D C C' p, A', A]
+    return out.reshape(s, dr, cr, cr, planes, right, right)
 
 
 def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
     """<psi| G(|phi_i><phi_i|) |psi> for every snapshot i, phi_i = P_i phi_(setting of i): (S,).
 
-    ``kets`` are the target's tensors as (left, physical, right). Snapshots are
+    ``kets`` are the target's tensors as (left, physical, right), all complex
+    or all real (then the sweep runs on real (re, im) planes). Snapshots are
     grouped, qubit by qubit, by the bonds of their phi on both sides of the
     qubit, so no work is spent on padding; within a group everything is a
     batched matrix product. P_i = X^x Z^z per qubit (its phase cancels in
@@ -407,12 +428,15 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
     count = len(which)
     snap_rank = ranks[which]
     sign = 1 - 2 * flip_z.astype(np.int8)
-    envs = {1: (np.arange(count), np.ones((count, 1, 1, 1, 1, 1), dtype=complex))}
+    planes = 1 if np.iscomplexobj(kets[0]) else 2
+    start = np.zeros((count, 1, 1, 1, planes, 1, 1), dtype=kets[0].dtype)
+    start[:, :, :, :, 0] = 1.0
+    envs = {1: (np.arange(count), start)}
     for q, ket in enumerate(kets):
         kety = np.ascontiguousarray(ket.transpose(1, 0, 2))
         bra_rows = np.ascontiguousarray(ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1))
-        g_keep = g[q][:, 1, :].astype(complex)
-        g_trace = 0.5 * (g[q][:, 0, :] - g[q][:, 1, :]).astype(complex)
+        g_keep = g[q][:, 1, :].astype(ket.dtype)
+        g_trace = 0.5 * (g[q][:, 0, :] - g[q][:, 1, :]).astype(ket.dtype)
         parts: dict = {}
         for left, (rows, env) in envs.items():
             right_of = snap_rank[rows, q + 1]
@@ -428,7 +452,7 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
                 for r, ps in parts.items()}
     rows, env = envs[1]
     out = np.empty(count)
-    out[rows] = env.reshape(len(rows)).real
+    out[rows] = env.reshape(len(rows), planes)[:, 0].real
     return out
 
 
@@ -453,7 +477,9 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     if len(tensors) != n:
         raise InputError(f"the target MPS has {len(tensors)} sites but the snapshots have {n} qubits")
     _neighbour_gates(ensemble)
-    kets = [np.ascontiguousarray(np.asarray(a, dtype=complex).transpose(0, 2, 1)) for a in tensors]
+    real = not any(np.iscomplexobj(a) and np.any(np.asarray(a).imag) for a in tensors)
+    kets = [np.ascontiguousarray(np.asarray(a).real.astype(float).transpose(0, 2, 1) if real else
+                                 np.asarray(a, dtype=complex).transpose(0, 2, 1)) for a in tensors]
     setting_index = np.asarray(setting_index, dtype=np.int64)
     bits = np.asarray(bits, dtype=np.int64)
     order = np.argsort(setting_index, kind="stable")

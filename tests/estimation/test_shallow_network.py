@@ -221,3 +221,18 @@ def test_threads_share_the_chunks_without_changing_a_bit():
     two = sn.shallow_fidelity_mps(inv, target, ens, settings, idx, bits, chunk=3, workers=2)
     np.testing.assert_array_equal(one, two)
     assert list(ordered_map(lambda _: spare_workers(), range(3), workers=2)) == [1, 1, 1]
+
+
+def test_real_target_on_real_planes_equals_the_complex_route():
+    # a global phase leaves <psi|rho|psi> unchanged (fact of quantum mechanics): a real target, and the
+    # same target times exp(0.3i) (complex tensors, the complex route) give the same f_i; the real
+    # target also agrees with the exact dense Walsh-Hadamard route (docs/design.md section 4.5)
+    n = 10
+    psi = np.random.default_rng(10).normal(size=2**n)
+    psi /= np.linalg.norm(psi)
+    ens, settings, idx, bits = shallow_setup(n, 3, 2, 10, 3, psi)
+    inv = sn.shallow_inverse(ens, bond=16)
+    real = sn.shallow_fidelity_mps(inv, dense_to_tensors(psi), ens, settings, idx, bits)
+    phased = sn.shallow_fidelity_mps(inv, dense_to_tensors(np.exp(0.3j) * psi), ens, settings, idx, bits)
+    np.testing.assert_allclose(real, phased, atol=1e-10)
+    np.testing.assert_allclose(real, fid.shallow_fidelity(psi, ens, settings, idx, bits), atol=1e-8)
