@@ -49,6 +49,12 @@ def record_parts(n_records: int, part: int | None = None) -> list[tuple[int, int
     return [(start, min(start + part, n_records)) for start in range(0, n_records, part)]
 
 
+def part_size(accumulators) -> int | None:
+    """The smallest part any of the accumulators asks for (None: the default), the same for every scheduler."""
+    asked = [acc.part_records for acc in accumulators if acc.part_records]
+    return min(asked) if asked else None
+
+
 def fill_part(setup, build, start: int, stop: int, chunk: int, source=None):
     """Accumulators filled with records start..stop (``source``: a shadow file to open here, for workers)."""
     from manybody.estimation.driver import fill
@@ -72,7 +78,7 @@ def fill_parts(setup, build, chunk: int, scheduler=None, progress=None):
     else this thread), "threads", "sync", an address such as "tcp://host:8786",
     or a dask.distributed Client. ``progress`` wraps the sequence of parts.
     """
-    parts = record_parts(setup.shadow.n_records)
+    parts = record_parts(setup.shadow.n_records, part_size(build(setup)))
     results = _run(setup, build, chunk, scheduler, parts)
     merged = None
     for accumulators in (progress(_Sized(results, len(parts))) if progress else results):

@@ -41,7 +41,6 @@ def test_shallow_fidelity_beyond_the_exact_size_carries_the_fit_residual():
     import quimb.tensor as qtn
 
     from manybody.estimation.shallow_network import shallow_inverse
-
     from manybody.io.shadow import Shadow
     from manybody.simulation.sampling import sample_mps
 
@@ -62,6 +61,12 @@ def test_shallow_fidelity_beyond_the_exact_size_carries_the_fit_residual():
         assert float(result.fidelity_err) >= bias == attrs["bias_bound_in_error"]
         ok, worst = within(result.fidelity.values, result.fidelity_err.values, value)
         assert ok, worst
+    # our own behaviour: the fitted route asks for small parts (the progress bar moves, the parts share
+    # the cores, here 3 parts of 256 records); every scheduler cuts the same parts and gives the same numbers
+    from manybody.estimation.accumulators.fidelity import NETWORK_PART_RECORDS
+
+    serial = estimate(shadow, None, quantities=("fidelity",), options={"target": ghz}, scheduler="sync")
+    assert NETWORK_PART_RECORDS < 600 and float(serial.fidelity) == float(result.fidelity)
 
 
 def test_robust_fidelity_with_readout_errors():

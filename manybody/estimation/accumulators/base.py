@@ -31,6 +31,8 @@ class Accumulator:
     plain_means: dict[str, str] = {}
     #: dataset name -> (sum, sum of squares per snapshot), for the analytic standard error
     analytic_means: dict[str, tuple[str, str]] = {}
+    #: records per part this accumulator asks for (None: the default); slow ones ask for small parts
+    part_records: int | None = None
 
     def __init__(self, setup):
         self.setup = setup

@@ -22,6 +22,10 @@ from manybody.errors import InputError
 from manybody.estimation.accumulators.base import Accumulator, interval_key, put
 from manybody.estimation.fidelity import as_mps, fidelity_snapshots, local_route_target, uses_network_inverse
 
+#: records per part with the fitted inverse (tens of ms per snapshot): the parts share the cores and the
+#: progress bar moves every few seconds
+NETWORK_PART_RECORDS = 256
+
 
 class Fidelity(Accumulator):
     plain_means = {"fidelity": "fidelity"}
@@ -40,6 +44,7 @@ class Fidelity(Accumulator):
 
             self.inverse = shallow_inverse(setup.ensemble)
             self.target = as_mps(target)
+            self.part_records = NETWORK_PART_RECORDS
 
     @classmethod
     def build(cls, setup, options):
