@@ -36,6 +36,9 @@ from manybody.threads import available_cores, ordered_map, single_threaded_blas
 #: the dense backend is the default up to this many qubits.
 DENSE_MAX_QUBITS = 14
 SETTINGS_PER_CHUNK = 2048
+#: settings per chunk when an MPS is sampled through gate layers (tens of ms per setting): small chunks
+#: keep every core busy and the progress bar moving
+CIRCUIT_MPS_SETTINGS_PER_CHUNK = 64
 #: chunks drawn ahead of the consumer, per worker (bounds the memory of a parallel run)
 CHUNKS_IN_FLIGHT = 2
 NAMED_STATES = ("ground", "neel", "zero", "one", "plus", "minus")
@@ -158,8 +161,9 @@ def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, s
     thread runs it, so the records do not depend on ``workers``.
     """
     n_settings = len(settings)
-    chunk_seeds = seed.spawn(-(-n_settings // SETTINGS_PER_CHUNK))
-    starts = range(0, n_settings, SETTINGS_PER_CHUNK)
+    per_chunk = CIRCUIT_MPS_SETTINGS_PER_CHUNK if backend == "mps" and not ens.is_local else SETTINGS_PER_CHUNK
+    chunk_seeds = seed.spawn(-(-n_settings // per_chunk))
+    starts = range(0, n_settings, per_chunk)
     if backend == "mps":
         psi = mps_site_tensors(psi)  # canonical form once, shared read-only by the threads
     if not ens.is_local:
@@ -170,7 +174,7 @@ def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, s
     def draw(job):
         start, cseed = job
         rng = np.random.default_rng(cseed)
-        part = settings.take(slice(start, start + SETTINGS_PER_CHUNK))
+        part = settings.take(slice(start, start + per_chunk))
         lost = 0.0
         if backend == "dense":
             bits = sample_dense(psi, ens, part, shots, rng)
