@@ -67,6 +67,21 @@ def test_fit_residual_reported_exactly_and_shrinks_with_bond():
     assert rms[1] < 0.1 * rms[0]
 
 
+def test_tiny_fit_residual_is_reported_not_rounded_to_zero():
+    # depth 2 at bond 8 fits 1/lambda to ~1e-11: the weighted RMS must match the direct mean over all
+    # 2^n patterns (lambda from the support chain itself), far below the 1e-7 that sqrt(<r,r>) expanded
+    # as <lambda g, lambda g> - 2 <lambda g, 1> + 1 could resolve
+    n = 10
+    ens = ShallowEnsemble(n, 2, chain(n))
+    patterns = all_patterns(n)
+    lam = np.array([ens.eigenvalue(p) for p in patterns])
+    inv = sn.shallow_inverse(ens, bond=8)
+    r = lam * sn.mps_values(inv.inverse, patterns) - 1.0
+    direct = np.sqrt(np.mean(r**2))
+    assert 0 < direct < 1e-8
+    assert inv.rms_residual == pytest.approx(direct, rel=1e-3)
+
+
 # ------------------------------------------------------- (b) per-snapshot values against dense routes
 def shallow_setup(n, depth, shots, n_settings, seed, psi):
     rng = np.random.default_rng(seed)
