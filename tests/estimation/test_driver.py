@@ -107,6 +107,29 @@ def test_purity_algorithms_agree_on_the_same_data():
     assert by_vector == pytest.approx(by_hist, rel=1e-10)
 
 
+@pytest.mark.parametrize("inv", [3.0, 3.0 * (1 + 0.05 * np.arange(6))], ids=["uniform", "calibrated"])
+def test_pair_counts_by_block_leave_out_same_setting_pairs(inv):
+    # The definition, pair by pair: tr(rho_i^A rho_j^A) = prod_q F(w_iq, w_jq) with F = (1 + s)/2 for the same
+    # basis and outcome, (1 - s)/2 for the same basis and opposite outcomes, 1/2 for different bases,
+    # s = 1/lambda_q^2 (Elben et al., PRL 120, 050406 (2018)); pairs of one setting are left out, the sums
+    # are split by the blocks of both snapshots. Settings of 4 shots in shuffled record order.
+    rng = np.random.default_rng(11)
+    n_snap, k = 240, 6
+    w = rng.integers(0, 6, size=(n_snap, k))
+    setting = rng.permutation(np.repeat(np.arange(n_snap // 4), 4))
+    blocks = rng.integers(0, 3, n_snap)
+    s = np.broadcast_to(np.asarray(inv, dtype=float) ** 2, (k,))
+    expected = np.zeros((3, 3))
+    for i in range(n_snap):
+        for j in range(n_snap):
+            if setting[i] != setting[j]:
+                same_o, same_b = w[i] == w[j], w[i] // 2 == w[j] // 2
+                expected[blocks[i], blocks[j]] += np.prod(np.where(same_o, (1 + s) / 2,
+                                                                   np.where(same_b, (1 - s) / 2, 0.5)))
+    got = pair_count_sum(w, inv, chunk=50, exclude=setting, blocks=blocks, n_blocks=3)
+    np.testing.assert_allclose(got, expected, rtol=1e-12, atol=1e-9 * np.abs(expected).max())
+
+
 def test_mutual_information_pair_sums_equal_the_word_histogram_of_every_pair():
     # docs/design.md section 4: sum over pairs of snapshots of prod_sites F(w_i, w_j) with the 6x6 factor
     # matrix (5, -4, 1/2; Elben et al., PRL 120, 050406 (2018)) from the histogram of (basis, outcome) words
