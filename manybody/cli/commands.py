@@ -173,7 +173,8 @@ def cmd_estimate(args) -> int:
             except InputError as exc:
                 raise InputError(f"{path}: {exc}", argument=exc.argument) from None
             if other is not None:
-                ds = ds.assign(_overlap_variables(mb.overlap(shadow, other, blocks=args.blocks)))
+                ds = ds.assign(_overlap_variables(mb.overlap(shadow, other, qubits=_qubit_list(args.overlap_qubits),
+                                                             blocks=args.blocks)))
         for w in caught:
             print(f"warning: {path}: {w.message}", file=sys.stderr)
         results.append(ds)
@@ -181,6 +182,21 @@ def cmd_estimate(args) -> int:
     write_dataset(combine_series(results, [s.label for s in shadows]), args.output)
     print(f"wrote {args.output}")
     return 0
+
+
+def _qubit_list(text):
+    """'0-9' or '0,2,5' (or None: every qubit) as a list of qubit numbers."""
+    if text is None:
+        return None
+    try:
+        out = []
+        for part in text.split(","):
+            a, _, b = part.strip().partition("-")
+            out += list(range(int(a), int(b) + 1)) if b else [int(a)]
+        return out
+    except ValueError:
+        raise InputError(f"qubits {text!r}: expected qubit numbers such as 0-9 or 0,2,5",
+                         argument="qubits") from None
 
 
 def _overlap_variables(ds) -> dict:

@@ -238,6 +238,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--observables-file", metavar="OBS.toml", help="named observables in a TOML file (docs/formats.md)")
     p.add_argument("--overlap", metavar="OTHER.nc",
                    help="also estimate tr(rho rho_other) and its normalised form with another shadow of the same qubits")
+    p.add_argument("--overlap-qubits", metavar="QUBITS",
+                   help="compare the two shadows on these qubits only, e.g. 0-9 or 0,2,5 (default all; circuit "
+                        "ensembles take at most 14)")
     p.add_argument("--scheduler", metavar="WHERE",
                    help="where the parts of the records are accumulated: 'threads' (a pool on this machine, the "
                         "default with more than one core), 'sync' (this thread) or a dask.distributed scheduler "
@@ -320,7 +323,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 #: Python arguments whose command-line name is not --<argument>
 ARGUMENT_NAMES = {"spec": "SPEC.toml", "shadow": "SHADOW.nc", "shadows": "SHADOW.nc", "quantities": "--quantities",
-                  "observables": "--observable", "shadow_a": "SHADOW.nc", "shadow_b": "--overlap"}
+                  "observables": "--observable", "shadow_a": "SHADOW.nc", "shadow_b": "--overlap",
+                  "qubits": "--overlap-qubits"}
 
 
 def in_flags(exc) -> str:

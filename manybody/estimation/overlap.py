@@ -77,8 +77,8 @@ def overlap(shadow_a, shadow_b, qubits=None, n_blocks: int = 20, chunk: int = 81
     else:
         if len(qubits) > PAULI_VECTOR_MAX_QUBITS:
             raise InputError(f"qubits: overlaps of {len(qubits)} qubits from circuit ensembles take too long here; "
-                             f"at most {PAULI_VECTOR_MAX_QUBITS} (two local shadows take any number)",
-                             argument="qubits")
+                             f"choose at most {PAULI_VECTOR_MAX_QUBITS} (qubits=, on the command line "
+                             "--overlap-qubits); two local shadows take any number", argument="qubits")
         method = "Pauli vectors"
         mats = _pauli_matrices(shadow_a, shadow_b, blocks, qubits, b, chunk)
     counts = [(np.bincount(bl[s > 0], weights=s[s > 0], minlength=b),
@@ -287,4 +287,7 @@ def _jackknife(t_ab, t_aa, t_bb, counts):
     if not np.isfinite(full["normalized_overlap"]):
         warnings.warn("overlap: both purity estimates are <= 0 (too few snapshots): the normalised overlap is NaN",
                       RuntimeWarning, stacklevel=3)
+    elif not np.isfinite(err["normalized_overlap"]):
+        warnings.warn("overlap: without some blocks both purity estimates are <= 0 (too few snapshots): the error "
+                      "of the normalised overlap is NaN", RuntimeWarning, stacklevel=3)
     return full, err

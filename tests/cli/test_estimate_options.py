@@ -40,6 +40,15 @@ def test_observables_and_overlap_from_the_command_line(tmp_path):
         assert ok, worst
     bad = run("estimate", "a.nc", "--observable", "bad=Q0", "-o", "x.nc", cwd=tmp_path)
     assert bad.returncode == 2 and "--observable 'bad'" in bad.stderr and "Traceback" not in bad.stderr
+    # on qubits 1-2 only: two shadows of one state have normalised overlap 1 there too (same fact)
+    out = run("estimate", "a.nc", "--overlap", "b.nc", "--overlap-qubits", "1-2", "-o", "r2.nc", cwd=tmp_path)
+    assert out.returncode == 0, out.stderr
+    with xr.open_dataset(tmp_path / "r2.nc") as ds:
+        ok, worst = within(ds.normalized_overlap.values, ds.normalized_overlap_err.values, 1.0)
+        assert ok, worst
+    for qubits, words in (("1-x", "expected qubit numbers"), ("2,7", "from 0 to 3")):
+        bad = run("estimate", "a.nc", "--overlap", "b.nc", "--overlap-qubits", qubits, "-o", "x.nc", cwd=tmp_path)
+        assert bad.returncode == 2 and "--overlap-qubits" in bad.stderr and words in bad.stderr, bad.stderr
 
 
 def test_observables_through_the_api():
