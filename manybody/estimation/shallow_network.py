@@ -518,6 +518,7 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
 
     out = np.empty(len(setting_index))
     chunks = [order[start:start + chunk] for start in range(0, len(order), chunk)]
+    clifford_table(2)  # built once here, not by every thread at its first chunk
     workers = spare_workers() if workers is None else workers
     with single_threaded_blas():
         for rows, values in zip(chunks, ordered_map(one, chunks, min(workers, len(chunks)))):
