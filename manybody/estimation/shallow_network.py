@@ -365,41 +365,40 @@ def compress_states(tensors) -> tuple[list[np.ndarray], np.ndarray]:
 
 
 #: per-qubit maps of (g bond, phi bonds) up to this many rows x columns are applied as one dense matrix
-DENSE_MAP_ENTRIES = 1 << 14
+DENSE_MAP_ENTRIES = 1 << 12
 #: a + ib acting on (re, im) planes: [[a, -b], [b, a]]
 _PLANE_REAL, _PLANE_IMAG = np.eye(2), np.array([[0.0, -1.0], [1.0, 0.0]])
 
 
-def _on_planes(m, inner: int = 2):
-    """A complex map (s, R' x, R y) as a real one on (re, im) planes: (s, R' 2 x, R 2 y), x and y of size ``inner``."""
+def _on_planes(m):
+    """A complex map (s, R' x, R y) as a real one on (re, im) planes: (s, R' 2 x, R 2 y)."""
     s, rows, cols = m.shape
-    m = m.reshape(s, rows // inner, 1, inner, cols // inner, 1, inner)
+    m = m.reshape(s, rows // 2, 1, 2, cols // 2, 1, 2)
     out = m.real * _PLANE_REAL[:, None, None, :, None] + m.imag * _PLANE_IMAG[:, None, None, :, None]
     return out.reshape(s, 2 * rows, 2 * cols)
 
 
 def _qubit_map(phi, g_keep, g_trace, planes: int):
-    """The qubit's map of (d, c, c', y) to (D, C, C', x) for each snapshot, or its two Kronecker factors.
+    """The qubit's map of (d, c, c', y) to (D, C, C', x) for each snapshot, whole or as its factors.
 
     Keep part: g1[d, D] phi[c, x, C] phi^*[c', y, C']; trace part:
     (g0 - g1)[d, D]/2 delta(x, y) sum_u phi[c, u, C] phi^*[c', u, C'].
     Returns ("dense", m) with m[s] of shape (D C C' x, d c c' y) when that
-    matrix is small, else ("kron", keep, both) with the phi factors only,
-    keep (s, C C' x, c c' y) and both (s, C C', c c') of the trace part (the
-    identity on x = y); the g factors (real) are applied separately then.
-    With ``planes`` = 2 the maps act on real (re, im) planes placed before x and y.
+    matrix is small; else the phi factors keep and trace, (s, C C' x, c c' y)
+    each, with the order in which the g factors (real, shared) are applied:
+    "g first" when the phi bonds grow at this qubit (g acts on the smaller
+    side), "phi first" when they shrink. With ``planes`` = 2 the maps act on
+    real (re, im) planes placed before x and y.
     """
     s, c, _, cr = phi.shape
     keep = np.einsum("scxC,sdyD->sCDxcdy", phi, phi.conj()).reshape(s, cr * cr * 2, c * c * 2)
-    both = np.einsum("scuC,sduD->sCDcd", phi, phi.conj()).reshape(s, cr * cr, c * c)
+    both = np.einsum("scuC,sduD->sCDcd", phi, phi.conj())
+    trace = np.einsum("sCDcd,xy->sCDxcdy", both, np.eye(2)).reshape(s, cr * cr * 2, c * c * 2)
     if planes == 2:
-        keep = _on_planes(keep)
+        keep, trace = _on_planes(keep), _on_planes(trace)
     dl, dr = g_keep.shape
     if dl * dr * keep.shape[1] * keep.shape[2] > DENSE_MAP_ENTRIES * planes**2:
-        return "kron", keep, (_on_planes(both, 1) if planes == 2 else both)
-    trace = np.einsum("sij,xy->sixjy", both, np.eye(2)).reshape(keep.shape[0], cr * cr * 2, c * c * 2)
-    if planes == 2:
-        trace = _on_planes(trace)
+        return ("g first" if cr >= c else "phi first"), keep, trace
     m = np.einsum("dD,sij->sDidj", g_keep, keep) + np.einsum("dD,sij->sDidj", g_trace, trace)
     return "dense", m.reshape(s, dr * keep.shape[1], dl * keep.shape[2])
 
@@ -412,25 +411,27 @@ def _site_step(env, kety, bra_rows, phi, g_keep, g_trace):
     tensor as (y, a, A), ``bra_rows`` its conjugate as (A', x a'). For a
     complex target there is one complex plane; for a real one the environment
     is real with two planes (re, im), so the target's products cost half.
-    Three products, all through BLAS: the ket (batched over s d c c' p), the
-    qubit's map of (d, c, c', p, y) per snapshot (:func:`_qubit_map`), and the
-    bra (batched over s D C C' p), which leaves the result in the layout it
+    Three steps, all matrix products: the ket (batched over s d c c' p), the
+    qubit's map of (d, c, c', p, y) per snapshot (:func:`_qubit_map`: one
+    dense matrix, or g and the phi factors one after the other), and the bra
+    (batched over s D C C' p), which leaves the result in the layout it
     started from.
     """
     s, d, c, c2, planes, bra, kt = env.shape
     right, cr, dr = kety.shape[2], phi.shape[3], g_keep.shape[1]
     x = np.matmul(env.reshape(-1, 1, bra, kt), kety)  # [s d c c' p, y, a', A]
-    x = x.reshape(s, d * c * c2 * planes * 2, bra * right)
+    rows, cols = c * c2 * planes * 2, bra * right
     kind, *maps = _qubit_map(phi, g_keep, g_trace, planes)
     if kind == "dense":
-        out = np.matmul(maps[0], x)  # [s, (D C C' p x), (a' A)]
-    else:
-        g_pair = np.concatenate([g_keep.T, g_trace.T])  # (2D, d)
-        xg = np.matmul(g_pair, x.reshape(s, d, -1)).reshape(s, 2, dr, c * c2 * planes * 2, bra * right)
-        keep, both = maps
-        out = np.matmul(keep[:, None], xg[:, 0])
-        # the trace part: ``both`` on (c c' p), the identity on x = y
-        out += np.matmul(both[:, None], xg[:, 1].reshape(s, dr, -1, 2 * bra * right)).reshape(out.shape)
+        out = np.matmul(maps[0], x.reshape(s, d * rows, cols))  # [s, (D C C' p x), (a' A)]
+    elif kind == "g first":  # g on (d) into (D, keep or trace), then [keep | trace] on (part, c c' p y)
+        g_both = np.stack([g_keep.T, g_trace.T], axis=1).reshape(2 * dr, d)
+        xg = np.matmul(g_both, x.reshape(s, d, rows * cols)).reshape(s, dr, 2 * rows, cols)
+        out = np.matmul(np.concatenate(maps, axis=2)[:, None], xg)
+    else:  # [keep; trace] on (c c' p y) into (part, C C' p x), then g on (d, part)
+        y = np.matmul(np.concatenate(maps, axis=1)[:, None], x.reshape(s, d, rows, cols))
+        g_both = np.stack([g_keep, g_trace], axis=1).reshape(2 * d, dr).T
+        out = np.matmul(g_both, y.reshape(s, 2 * d, -1))
     out = np.matmul(bra_rows, out.reshape(-1, 2 * bra, right))  # [s D C C' p, A', A]
     return out.reshape(s, dr, cr, cr, planes, right, right)
 
