@@ -8,8 +8,8 @@ phi = U^dag|b>), as one tensor network with a greedy path. Targets: a random
 complex MPS, and a random real one (ground states of real Hamiltonians are
 real). Outcome bits are drawn uniformly: the cost does not depend on them
 (Born sampling of a bond-32 target through depth-3 circuits costs seconds per
-setting here). 64 snapshots rather than 10^4: at 40-50 ms per snapshot here,
-10^4 take 7-8 minutes.
+setting here). 64 snapshots rather than 10^4: at 33-50 ms per snapshot here,
+10^4 take 6-8 minutes.
 
 The last column is the floor of this route: the ket and bra products with the
 target alone, counted exactly over the snapshots' bonds, at the rate this
