@@ -62,6 +62,8 @@ EXHAUSTIVE_QUBITS = 16
 SAMPLED_PATTERNS = 1 << 16
 #: snapshots per chunk are limited so that a chunk's environments stay near this size (the L3 cache)
 CHUNK_BYTES = 1 << 25
+#: snapshots per chunk at most (small targets: the per-chunk work in Python stays small beside the products)
+MAX_CHUNK = 256
 #: chi_phi^2 assumed for that limit (its mean is about 5 at depth 3, so this is generous)
 TYPICAL_PHI_BOND = 4
 #: ridge on the unit diagonal of the scaled normal equations of the fit.
@@ -478,15 +480,16 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
 
 
 def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, setting_index, bits,
-                         chunk: int = 8, workers: int | None = None) -> np.ndarray:
+                         chunk: int | None = None, workers: int | None = None) -> np.ndarray:
     """f_i = <psi| G(U_i^dag|b_i><b_i|U_i) |psi> for shallow snapshots and an MPS target: (N,).
 
     ``inverse`` from :func:`shallow_inverse` (g ~ 1/lambda, bias at most
     ``inverse.bias_bound``); ``target`` a quimb MPS or (left, right, physical)
     right-canonical tensors; ``setting_index`` (N,) positions in ``settings``;
-    ``bits`` (N, n). Snapshots are taken setting by setting in chunks of at most
-    ``chunk`` (fewer for large bonds, see CHUNK_BYTES, so that a chunk's
-    environments stay in the processor's cache): per distinct setting of a
+    ``bits`` (N, n). Snapshots are taken setting by setting in chunks of
+    ``chunk`` (default: as many as CHUNK_BYTES of environments hold, so that
+    they stay in the processor's cache, at most MAX_CHUNK, and with several
+    threads at least two chunks each): per distinct setting of a
     chunk U^dag|0> is built once, per snapshot only P_b = U^dag X^b U (XOR of
     the flip generators selected by b) and the sweep of :func:`_sandwich`.
     Chunks run on ``workers`` threads (default: the spare cores, see
@@ -506,7 +509,10 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     order = np.argsort(setting_index, kind="stable")
     chi = max(max(a.shape[:2]) for a in tensors)
     bond = max(a.shape[0] for a in inverse.inverse)
-    chunk = max(1, min(chunk, CHUNK_BYTES // (16 * 2 * TYPICAL_PHI_BOND**2 * bond * chi**2)))
+    workers = spare_workers() if workers is None else workers
+    if chunk is None:  # in cache, and with several threads at least two chunks each
+        chunk = min(MAX_CHUNK, CHUNK_BYTES // (16 * 2 * TYPICAL_PHI_BOND**2 * bond * chi**2))
+        chunk = max(1, min(chunk, -(-len(order) // (2 * workers))) if workers > 1 else chunk)
 
     def one(rows):
         distinct, which = np.unique(setting_index[rows], return_inverse=True)
@@ -520,7 +526,6 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     out = np.empty(len(setting_index))
     chunks = [order[start:start + chunk] for start in range(0, len(order), chunk)]
     clifford_table(2)  # built once here, not by every thread at its first chunk
-    workers = spare_workers() if workers is None else workers
     with single_threaded_blas():
         for rows, values in zip(chunks, ordered_map(one, chunks, min(workers, len(chunks)))):
             out[rows] = values
