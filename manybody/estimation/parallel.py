@@ -51,7 +51,8 @@ def record_parts(n_records: int, part: int | None = None) -> list[tuple[int, int
 
 def part_size(accumulators) -> int | None:
     """The smallest part any of the accumulators asks for (None: the default), the same for every scheduler."""
-    asked = [acc.part_records for acc in accumulators if acc.part_records]
+    asked = [getattr(acc, "part_records", None) for acc in accumulators]
+    asked = [a for a in asked if a]
     return min(asked) if asked else None
 
 
