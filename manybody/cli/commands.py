@@ -158,8 +158,9 @@ def cmd_estimate(args) -> int:
         calibration = Calibration(cal)
     results = []
     for path, shadow in zip(args.shadows, shadows):
-        with warnings.catch_warnings(record=True) as caught:
+        with warnings.catch_warnings():  # warnings are shown at once (some announce a long pass), with the file
             warnings.simplefilter("always", RuntimeWarning)
+            warnings.showwarning = lambda message, *_, **__: print(f"warning: {path}: {message}", file=sys.stderr)
             try:
                 ds = mb.estimate(shadow, model=args.model, subsystems=args.subsystems, calibration=calibration,
                                  target=args.target, bipartitions=args.bipartitions, scheduler=args.scheduler,
@@ -175,8 +176,6 @@ def cmd_estimate(args) -> int:
             if other is not None:
                 ds = ds.assign(_overlap_variables(mb.overlap(shadow, other, qubits=_qubit_list(args.overlap_qubits),
                                                              blocks=args.blocks)))
-        for w in caught:
-            print(f"warning: {path}: {w.message}", file=sys.stderr)
         results.append(ds)
         _print_summary(path, ds)
     write_dataset(combine_series(results, [s.label for s in shadows]), args.output)
