@@ -32,7 +32,9 @@ Three steps, all on matrix-product states (MPS) over the n support bits s_q
    left-to-right sweep of <psi| G(|phi><phi|) |psi> with environments
    (chi^2 D chi_phi^2 numbers, chi the target's bond), batched over the
    snapshots whose phi has the same bonds at that qubit. Cost per snapshot
-   O(n D chi_phi^2 chi^3); at depth 3 the mean chi_phi^2 is about 5.
+   O(n D chi_phi^2 chi^3); at depth 3 the mean chi_phi^2 is about 5.6. A real
+   target sweeps real (re, im) planes; chunks of snapshots run on the spare
+   cores (docs/design.md section 4.5 has the costs and their floor).
 
 Gates must act on neighbouring qubits (chain couplings, brickwork).
 """
@@ -64,7 +66,7 @@ SAMPLED_PATTERNS = 1 << 16
 CHUNK_BYTES = 1 << 25
 #: snapshots per chunk at most (small targets: the per-chunk work in Python stays small beside the products)
 MAX_CHUNK = 256
-#: chi_phi^2 assumed for that limit (its mean is about 5 at depth 3, so this is generous)
+#: chi_phi assumed for that limit (chi_phi^2 = 16, against a mean of about 5.6 at depth 3: generous)
 TYPICAL_PHI_BOND = 4
 #: ridge on the unit diagonal of the scaled normal equations of the fit.
 RIDGE = 1e-12
