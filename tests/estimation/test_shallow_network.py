@@ -155,13 +155,19 @@ def test_inputs_are_checked():
 
 
 # ------------------------------------------------------- (c) beyond dense sizes
-def mps_fidelity_estimate(state, target, n, depth, n_settings, seed, bond=8):
+def mps_snapshots(state, n, depth, n_settings, shots, seed):
+    """A depth-``depth`` chain ensemble, its drawn settings, and shots of an MPS ``state``: (ens, settings, idx, bits)."""
     rng = np.random.default_rng(seed)
     ens = ShallowEnsemble(n, depth, chain(n))
     settings = ens.draw(n_settings, rng)
-    bits, _ = sample_mps(state, ens, settings, 1, rng)
+    bits, _ = sample_mps(state, ens, settings, shots, rng)
+    return ens, settings, np.repeat(np.arange(n_settings), shots), bits
+
+
+def mps_fidelity_estimate(state, target, n, depth, n_settings, seed, bond=8):
+    ens, settings, idx, bits = mps_snapshots(state, n, depth, n_settings, 1, seed)
     inv = sn.shallow_inverse(ens, bond=bond)
-    f = sn.shallow_fidelity_mps(inv, target, ens, settings, np.arange(n_settings), bits)
+    f = sn.shallow_fidelity_mps(inv, target, ens, settings, idx, bits)
     return f.mean(), f.std(ddof=1) / np.sqrt(len(f)), inv
 
 
@@ -208,14 +214,11 @@ def test_depth_zero_is_the_local_estimator():
     # depth 0: lambda = 3^-|s| is a product, the fit is exact at bond 1, and f_i is the local
     # estimator <psi| (x)_q (3|v_q><v_q| - I) |psi> (Huang, Kueng, Preskill, Nat. Phys. 16, 1050 (2020))
     n = 12
-    ens = ShallowEnsemble(n, 0, chain(n))
     target = qtn.MPS_rand_state(n, 4, dtype=complex, seed=5)
-    rng = np.random.default_rng(6)
-    settings = ens.draw(40, rng)
-    bits, _ = sample_mps(target, ens, settings, 1, rng)
+    ens, settings, idx, bits = mps_snapshots(target, n, 0, 40, 1, 6)
     inv = sn.shallow_inverse(ens, bond=1)
     assert inv.max_residual < 1e-10  # rounding only
-    got = sn.shallow_fidelity_mps(inv, target, ens, settings, np.arange(40), bits)
+    got = sn.shallow_fidelity_mps(inv, target, ens, settings, idx, bits)
     np.testing.assert_allclose(got, fid.local_fidelity_mps(target, settings.basis, bits), atol=1e-9)
 
 
@@ -225,12 +228,8 @@ def test_threads_share_the_chunks_without_changing_a_bit():
     from manybody.threads import ordered_map, spare_workers
 
     n = 10
-    ens = ShallowEnsemble(n, 3, chain(n))
     target = qtn.MPS_rand_state(n, 4, dtype=complex, seed=8)
-    rng = np.random.default_rng(9)
-    settings = ens.draw(12, rng)
-    bits, _ = sample_mps(target, ens, settings, 2, rng)
-    idx = np.repeat(np.arange(12), 2)
+    ens, settings, idx, bits = mps_snapshots(target, n, 3, 12, 2, 9)
     inv = sn.shallow_inverse(ens, bond=4)
     one = sn.shallow_fidelity_mps(inv, target, ens, settings, idx, bits, chunk=3, workers=1)
     two = sn.shallow_fidelity_mps(inv, target, ens, settings, idx, bits, chunk=3, workers=2)
