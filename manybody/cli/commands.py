@@ -184,18 +184,10 @@ def cmd_estimate(args) -> int:
 
 
 def _qubit_list(text):
-    """'0-9' or '0,2,5' (or None: every qubit) as a list of qubit numbers."""
-    if text is None:
-        return None
-    try:
-        out = []
-        for part in text.split(","):
-            a, _, b = part.strip().partition("-")
-            out += list(range(int(a), int(b) + 1)) if b else [int(a)]
-        return out
-    except ValueError:
-        raise InputError(f"qubits {text!r}: expected qubit numbers such as 0-9 or 0,2,5",
-                         argument="qubits") from None
+    """'0-9' or '0,2,5' (or None: every qubit) as a list of qubit numbers, written like a subsystem."""
+    from manybody.estimation.setup import indices_of_label
+
+    return None if text is None else list(indices_of_label(text.strip(), "qubits", unit="qubits"))
 
 
 def _overlap_variables(ds) -> dict:

@@ -39,11 +39,12 @@ def parse_subsystems(text: str | None, n_sites: int, argument: str = "subsystems
     for part in text.split(";"):
         label = part.strip()
         if label:
-            out.append(subsystem_of(label, _sites_of_label(label, argument), n_sites, argument))
+            out.append(subsystem_of(label, indices_of_label(label, argument), n_sites, argument))
     return out
 
 
-def _sites_of_label(label: str, argument: str) -> tuple[int, ...]:
+def indices_of_label(label: str, argument: str, unit: str = "sites") -> tuple[int, ...]:
+    """The numbers of an inclusive range 'a-b' or a list 'a,b,c' (sites of a subsystem, qubits of an overlap)."""
     try:
         if "-" in label and "," not in label:
             a, b = (int(x) for x in label.split("-"))
@@ -52,7 +53,7 @@ def _sites_of_label(label: str, argument: str) -> tuple[int, ...]:
             return tuple(range(a, b + 1))
         return tuple(int(x) for x in label.split(","))
     except ValueError:
-        raise InputError(f"{argument} {label!r}: expected an inclusive range a-b or a list a,b,c of sites",
+        raise InputError(f"{argument} {label!r}: expected an inclusive range a-b or a list a,b,c of {unit}",
                          argument=argument) from None
 
 

@@ -46,7 +46,7 @@ def test_observables_and_overlap_from_the_command_line(tmp_path):
     with xr.open_dataset(tmp_path / "r2.nc") as ds:
         ok, worst = within(ds.normalized_overlap.values, ds.normalized_overlap_err.values, 1.0)
         assert ok, worst
-    for qubits, words in (("1-x", "expected qubit numbers"), ("2,7", "from 0 to 3")):
+    for qubits, words in (("1-x", "a list a,b,c of qubits"), ("2,7", "from 0 to 3")):
         bad = run("estimate", "a.nc", "--overlap", "b.nc", "--overlap-qubits", qubits, "-o", "x.nc", cwd=tmp_path)
         assert bad.returncode == 2 and "--overlap-qubits" in bad.stderr and words in bad.stderr, bad.stderr
 
