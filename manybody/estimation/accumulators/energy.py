@@ -99,11 +99,16 @@ class Energy(Accumulator):
             out["energy_variance"] = s["h2"] / count - mean_sq
         return out
 
+    def _term_supports(self):
+        """The distinct supports of the terms (P, n) and the row of each term (T,)."""
+        supports, which = np.unique(self.codes != 0, axis=0, return_inverse=True)
+        return supports, np.asarray(which).ravel()
+
     def calibration_supports(self):
         """Local ensemble: the qubits; circuit ensembles: the distinct supports of the terms."""
         if self.setup.local:
             return super().calibration_supports()
-        return np.unique(self.codes != 0, axis=0)
+        return self._term_supports()[0]
 
     def calibration_gradients(self, full, counts):
         """d/d ln lambda_S of sum_P c_P <P>: -c_P <P> summed over the terms P that divide by lambda_S.
@@ -117,8 +122,8 @@ class Energy(Accumulator):
         if self.setup.local:
             support = (self.codes != 0).astype(float)  # (T, n)
         else:  # term t divides by lambda of its own support, the row ``which[t]`` of calibration_supports()
-            supports, which = np.unique(self.codes != 0, axis=0, return_inverse=True)
-            support = np.eye(len(supports))[np.asarray(which).ravel()]  # (T, P)
+            supports, which = self._term_supports()
+            support = np.eye(len(supports))[which]  # (T, P)
         return {"energy": -(self.coeffs * mean) @ support,
                 "energy_density": -(self.density * mean[:, None]).T @ support}
 
