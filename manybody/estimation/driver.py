@@ -9,14 +9,13 @@ sums, and each writes its variables into one xarray Dataset.
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 import xarray as xr
 
 from manybody import __version__
 from manybody.errors import InputError
 from manybody.estimation.accumulators import ACCUMULATORS, DEFAULT_QUANTITIES
+from manybody.estimation.accumulators.purity import warn_long_pair_counts
 from manybody.estimation.errorbars import METHODS
 from manybody.estimation.parallel import fill_parts
 from manybody.estimation.setup import Chunk, Eigenvalues, Setup, Subsystem, parse_subsystems
@@ -41,32 +40,13 @@ def estimate(shadow, model=None, subsystems=(), calibration=None, n_blocks: int 
     if method not in METHODS:
         raise InputError(f"unknown error-bar method {method!r}; allowed: {', '.join(METHODS)}", argument="errors")
     setup, counts = _setup(shadow, model, subsystems, calibration, n_blocks)
-    _announce_pair_counts(setup, quantities, counts)
+    if quantities is None or "purity" in quantities:
+        warn_long_pair_counts(setup, counts)
     options = {"correlations": correlations, "mutual_information": mutual_information, **(options or {})}
     accumulators = fill_parts(setup, lambda s: _accumulators(s, quantities, options), chunk, scheduler, progress)
     for acc in accumulators:
         acc.finish()
     return _dataset(setup, accumulators, counts, method)
-
-
-#: cross-setting pairs of snapshots beyond which pair-count purities are announced before the pass
-#: (about 10 ns a pair on one core here, so this is a few minutes per subsystem)
-PAIR_COUNT_NOTICE = 2e10
-
-
-def _announce_pair_counts(setup, quantities, counts) -> None:
-    """A warning, before the pass, when local purities of more than 8 sites will sum over very many pairs."""
-    from manybody.estimation.accumulators.purity import HISTOGRAM_MAX_SITES
-
-    if not setup.local or not setup.subsystems or (quantities is not None and "purity" not in quantities):
-        return
-    big = [s.label for s in setup.subsystems if len(setup.qubits_of(s)) > HISTOGRAM_MAX_SITES]
-    pairs = (counts["n"].sum() ** 2 - counts["n2"].sum()) / 2
-    if big and pairs > PAIR_COUNT_NOTICE:
-        warnings.warn(f"purities of {', '.join(big)} (more than {HISTOGRAM_MAX_SITES} sites) sum over {pairs:.1e} "
-                      f"pairs of snapshots each: about {pairs * 1e-8 / 60:.0f} min each at 10 ns a pair; subsystems "
-                      f"of at most {HISTOGRAM_MAX_SITES} sites, or fewer snapshots, cost far less", RuntimeWarning,
-                      stacklevel=3)
 
 
 def fill(accumulators, setup, chunks, size: int = 8192) -> None:

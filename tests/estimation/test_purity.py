@@ -106,17 +106,17 @@ def test_circuit_mutual_information_map_with_one_or_many_shots(shots):
 def test_long_pair_count_pass_is_announced_before_it_starts(monkeypatch):
     # our own behaviour (no outside source): local purities of more than 8 sites cost N^2 pairs; beyond
     # PAIR_COUNT_NOTICE pairs a warning says so before the pass (the threshold lowered to see it here)
-    from manybody.estimation import driver
+    from manybody.estimation.accumulators import purity
     from manybody.measure.ensembles import LocalEnsemble
 
     n = 10
     psi = np.zeros(2**n)
     psi[0] = 1.0
     shadow = make_shadow(psi, LocalEnsemble(n), 300, seed=4)
-    monkeypatch.setattr(driver, "PAIR_COUNT_NOTICE", 1e4)
+    monkeypatch.setattr(purity, "PAIR_COUNT_NOTICE", 1e4)
     with pytest.warns(RuntimeWarning, match=r"purities of 0-9 .* 4\.5e\+04 pairs"):
         estimate(shadow, None, parse_subsystems("0-9;0-3", n), quantities=("purity",))
-    monkeypatch.setattr(driver, "PAIR_COUNT_NOTICE", 1e5)
+    monkeypatch.setattr(purity, "PAIR_COUNT_NOTICE", 1e5)
     with warnings.catch_warnings():
         warnings.simplefilter("error", RuntimeWarning)
         estimate(shadow, None, parse_subsystems("0-9", n), quantities=("purity",))

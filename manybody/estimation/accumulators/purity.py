@@ -51,8 +51,27 @@ from manybody.estimation.stabilizer import (
 )
 
 HISTOGRAM_MAX_SITES = 8
+#: cross-setting pairs of snapshots beyond which pair-count purities are announced before the pass
+#: (about 10 ns a pair on one core here, so this is a few minutes per subsystem)
+PAIR_COUNT_NOTICE = 2e10
 #: circuit ensembles: largest subsystem (qubits); the eigenvalues of its 2^|A| support patterns dominate the cost
 PAULI_VECTOR_MAX_QUBITS = 14
+
+
+def warn_long_pair_counts(setup, counts) -> None:
+    """A warning, before the pass, when local purities of more than 8 sites will sum over very many pairs.
+
+    ``counts``: the per-block snapshot counts n and n2 of the driver's setup.
+    """
+    if not setup.local or not setup.subsystems:
+        return
+    big = [s.label for s in setup.subsystems if len(setup.qubits_of(s)) > HISTOGRAM_MAX_SITES]
+    pairs = (counts["n"].sum() ** 2 - counts["n2"].sum()) / 2
+    if big and pairs > PAIR_COUNT_NOTICE:
+        warnings.warn(f"purities of {', '.join(big)} (more than {HISTOGRAM_MAX_SITES} sites) sum over {pairs:.1e} "
+                      f"pairs of snapshots each: about {pairs * 1e-8 / 60:.0f} min each at 10 ns a pair; subsystems "
+                      f"of at most {HISTOGRAM_MAX_SITES} sites, or fewer snapshots, cost far less", RuntimeWarning,
+                      stacklevel=3)
 
 
 class Purity(Accumulator):
