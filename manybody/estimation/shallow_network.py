@@ -440,11 +440,24 @@ def _site_step(env, kety, bra_rows, phi, g_keep, g_trace):
     return out.reshape(s, dr, cr, cr, planes, right, right)
 
 
-def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
+def _qubit_factors(kets, g) -> list[tuple]:
+    """Per qubit what every snapshot's sweep uses: (kety, bra_rows, g_keep, g_trace) (see :func:`_site_step`).
+
+    ``kets`` are the target's tensors as (left, physical, right), all complex or all real; ``g`` the fit's tensors.
+    """
+    out = []
+    for ket, gq in zip(kets, g):
+        out.append((np.ascontiguousarray(ket.transpose(1, 0, 2)),
+                    np.ascontiguousarray(ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1)),
+                    gq[:, 1, :].astype(ket.dtype), 0.5 * (gq[:, 0, :] - gq[:, 1, :]).astype(ket.dtype)))
+    return out
+
+
+def _sandwich(factors, phi, ranks, which, flip_x, flip_z) -> np.ndarray:
     """<psi| G(|phi_i><phi_i|) |psi> for every snapshot i, phi_i = P_i phi_(setting of i): (S,).
 
-    ``kets`` are the target's tensors as (left, physical, right), all complex
-    or all real (then the sweep runs on real (re, im) planes). Snapshots are
+    ``factors`` from :func:`_qubit_factors`; a real target (real factors)
+    sweeps real (re, im) planes. Snapshots are
     grouped, qubit by qubit, by the bonds of their phi on both sides of the
     qubit, so no work is spent on padding; within a group everything is a
     batched matrix product. P_i = X^x Z^z per qubit (its phase cancels in
@@ -453,15 +466,12 @@ def _sandwich(kets, phi, ranks, g, which, flip_x, flip_z) -> np.ndarray:
     count = len(which)
     snap_rank = ranks[which]
     sign = 1 - 2 * flip_z.astype(np.int8)
-    planes = 1 if np.iscomplexobj(kets[0]) else 2
-    start = np.zeros((count, 1, 1, 1, planes, 1, 1), dtype=kets[0].dtype)
+    dtype = factors[0][0].dtype
+    planes = 1 if np.iscomplexobj(factors[0][0]) else 2
+    start = np.zeros((count, 1, 1, 1, planes, 1, 1), dtype=dtype)
     start[:, :, :, :, 0] = 1.0
     envs = {1: (np.arange(count), start)}
-    for q, ket in enumerate(kets):
-        kety = np.ascontiguousarray(ket.transpose(1, 0, 2))
-        bra_rows = np.ascontiguousarray(ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1))
-        g_keep = g[q][:, 1, :].astype(ket.dtype)
-        g_trace = 0.5 * (g[q][:, 0, :] - g[q][:, 1, :]).astype(ket.dtype)
+    for q, (kety, bra_rows, g_keep, g_trace) in enumerate(factors):
         parts: dict = {}
         for left, (rows, env) in envs.items():
             right_of = snap_rank[rows, q + 1]
@@ -504,8 +514,9 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
         raise InputError(f"the target MPS has {len(tensors)} sites but the snapshots have {n} qubits")
     _neighbour_gates(ensemble)
     real = not any(np.iscomplexobj(a) and np.any(np.asarray(a).imag) for a in tensors)
-    kets = [np.ascontiguousarray(np.asarray(a).real.astype(float).transpose(0, 2, 1) if real else
-                                 np.asarray(a, dtype=complex).transpose(0, 2, 1)) for a in tensors]
+    kets = [np.asarray(a).real.astype(float).transpose(0, 2, 1) if real else
+            np.asarray(a, dtype=complex).transpose(0, 2, 1) for a in tensors]
+    factors = _qubit_factors(kets, inverse.inverse)  # once, shared by every chunk
     setting_index = np.asarray(setting_index, dtype=np.int64)
     bits = np.asarray(bits, dtype=np.int64)
     order = np.argsort(setting_index, kind="stable")
@@ -523,7 +534,7 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
         gen = flip_generators(ensemble, sub)[which]  # (S, j, qubit)
         flip_x = np.einsum("sj,sjq->sq", bits[rows], (gen & 1).astype(np.int64)) & 1
         flip_z = np.einsum("sj,sjq->sq", bits[rows], (gen >> 1).astype(np.int64)) & 1
-        return _sandwich(kets, phi, ranks, inverse.inverse, which, flip_x.astype(bool), flip_z)
+        return _sandwich(factors, phi, ranks, which, flip_x.astype(bool), flip_z)
 
     out = np.empty(len(setting_index))
     chunks = [order[start:start + chunk] for start in range(0, len(order), chunk)]
