@@ -95,3 +95,13 @@ def ordered_map(fn, items, workers: int, ahead: int = 2):
     fn = _as_worker(fn)
     with ThreadPoolExecutor(max_workers=workers) as pool:
         yield from ordered_results(lambda item: pool.submit(fn, item), items, ahead * workers)
+
+
+def ordered_map_one_blas(fn, items, workers: int, ahead: int = 2):
+    """:func:`ordered_map` with BLAS held to one thread (:func:`single_threaded_blas`) until the last result.
+
+    Our threads share the cores instead of BLAS, and every item gets the same
+    arithmetic whatever the number of workers.
+    """
+    with single_threaded_blas():
+        yield from ordered_map(fn, items, workers, ahead)

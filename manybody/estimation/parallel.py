@@ -20,7 +20,7 @@ an accumulator that keeps other attributes in ``add`` must define it.
 from __future__ import annotations
 
 from manybody.errors import InputError
-from manybody.threads import available_cores, ordered_map, ordered_results, single_threaded_blas
+from manybody.threads import available_cores, ordered_map_one_blas, ordered_results, single_threaded_blas
 
 #: records per part (a few chunks each, so that every worker stays busy)
 PART_RECORDS = 1 << 17
@@ -130,17 +130,11 @@ def _run(setup, build, chunk, scheduler, parts):
     def one(part):
         return fill_part(setup, build, part[0], part[1], chunk)
 
-    return _ordered_map(one, parts, workers)
-
-
-def _ordered_map(fn, items, workers: int):
-    """fn(item) for every item, yielded in order, on ``workers`` threads with BLAS on one thread."""
-    with single_threaded_blas():
-        yield from ordered_map(fn, items, workers, PARTS_IN_FLIGHT)
+    return ordered_map_one_blas(one, parts, workers, PARTS_IN_FLIGHT)
 
 
 def _run_cluster(lite, build, chunk, client, source, parts):
-    """As :func:`_ordered_map`, on the workers of a dask.distributed cluster, which read the shadow ``source``."""
+    """As the pool of threads, on the workers of a dask.distributed cluster, which read the shadow ``source``."""
     window = PARTS_IN_FLIGHT * max(1, len(client.scheduler_info().get("workers", {})))
 
     def submit(part):

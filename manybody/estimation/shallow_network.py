@@ -54,7 +54,7 @@ from manybody.measure.eigenvalues import FINAL_WEIGHT, GATE_TRANSITION
 from manybody.measure.propagation import pull_back_layers
 from manybody.simulation.sampling import mps_site_tensors
 from manybody.simulation.statevector import BASIS_ROTATIONS
-from manybody.threads import ordered_map, single_threaded_blas, spare_workers
+from manybody.threads import ordered_map_one_blas, spare_workers
 
 #: singular values below this fraction of the largest are dropped (exact MPS up to rounding).
 EXACT_CUTOFF = 1e-13
@@ -539,7 +539,6 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     out = np.empty(len(setting_index))
     chunks = [order[start:start + chunk] for start in range(0, len(order), chunk)]
     clifford_table(2)  # built once here, not by every thread at its first chunk
-    with single_threaded_blas():
-        for rows, values in zip(chunks, ordered_map(one, chunks, min(workers, len(chunks)))):
-            out[rows] = values
+    for rows, values in zip(chunks, ordered_map_one_blas(one, chunks, min(workers, len(chunks)))):
+        out[rows] = values
     return out

@@ -31,7 +31,7 @@ from manybody.measure.prepare import coupling_of, fresh_seed
 from manybody.references import exact
 from manybody.simulation.noise import Noise
 from manybody.simulation.sampling import mps_site_tensors, sample_dense, sample_mps
-from manybody.threads import available_cores, ordered_map, single_threaded_blas
+from manybody.threads import available_cores, ordered_map_one_blas
 
 #: the dense backend is the default up to this many qubits.
 DENSE_MAX_QUBITS = 14
@@ -183,14 +183,14 @@ def _records(psi, ens, settings, shots, n_snapshots, noise, backend, bond_dim, s
         return np.repeat(part.ids, shots), noise.apply(bits, rng), lost
 
     written = 0
-    with single_threaded_blas():  # for the whole run: the same arithmetic whatever the number of workers
-        chunks = ordered_map(draw, zip(starts, chunk_seeds), workers, CHUNKS_IN_FLIGHT)
-        for _, (ids, bits, lost) in zip(progress(starts) if progress else starts, chunks):
-            if backend == "mps" and not ens.is_local:
-                meta["discarded_weight"] = max(meta.get("discarded_weight", 0.0), lost)
-            keep = min(len(ids), n_snapshots - written)
-            yield ids[:keep], bits[:keep], np.ones(keep, dtype=np.int64)
-            written += keep
+    # BLAS on one thread for the whole run: the same arithmetic whatever the number of workers
+    chunks = ordered_map_one_blas(draw, zip(starts, chunk_seeds), workers, CHUNKS_IN_FLIGHT)
+    for _, (ids, bits, lost) in zip(progress(starts) if progress else starts, chunks):
+        if backend == "mps" and not ens.is_local:
+            meta["discarded_weight"] = max(meta.get("discarded_weight", 0.0), lost)
+        keep = min(len(ids), n_snapshots - written)
+        yield ids[:keep], bits[:keep], np.ones(keep, dtype=np.int64)
+        written += keep
 
 
 def simulate(model, state: str, n_snapshots: int, ensemble_kind: str = "local", depth: int = 0,
