@@ -68,9 +68,9 @@ def test_fit_residual_reported_exactly_and_shrinks_with_bond():
 
 
 def test_tiny_fit_residual_is_reported_not_rounded_to_zero():
-    # depth 2 at bond 8 fits 1/lambda to ~1e-11: the weighted RMS must match the direct mean over all
-    # 2^n patterns (lambda from the support chain itself), far below the 1e-7 that sqrt(<r,r>) expanded
-    # as <lambda g, lambda g> - 2 <lambda g, 1> + 1 could resolve
+    # our own behaviour against its definition (no outside source): depth 2 at bond 8 fits 1/lambda to
+    # ~1e-11, and the weighted RMS must match the direct mean over all 2^n patterns (lambda from the support
+    # chain itself), far below the 1e-7 that <lambda g, lambda g> - 2 <lambda g, 1> + 1 could resolve
     n = 10
     ens = ShallowEnsemble(n, 2, chain(n))
     patterns = all_patterns(n)
