@@ -1,8 +1,10 @@
 """Shallow-circuit fidelity to a 40-site MPS target of bond 32: time per snapshot and fit residual.
 
 Ours: manybody.estimation.shallow_network (fitted inverse g ~ 1/lambda of bond
-D, snapshots in chunks of 8 grouped by the bonds of U^dag|b>, chunks on the
-spare cores, real targets on real planes). Baseline: a straightforward quimb
+D, snapshots in chunks grouped by the bonds of U^dag|b>, chunks on the
+spare cores, real targets on real planes), in double precision and in the
+single precision that estimates use when its rounding is negligible beside
+the fit's bias bound (max |diff| is against the double-precision baseline). Baseline: a straightforward quimb
 contraction per snapshot of <psi| G(|phi><phi|) |psi> (the same g, the same
 phi = U^dag|b>), as one tensor network with a greedy path. Targets: a random
 complex MPS, and a random real one (ground states of real Hamiltonians are
@@ -67,12 +69,12 @@ def baseline(inverse, tensors, ens, settings, setting_index, bits):
     return np.array(out)
 
 
-def target_products_floor(inverse, tensors, ens, settings, workers):
+def target_products_floor(inverse, tensors, ens, settings, workers, precision):
     """ms per snapshot that the target's ket and bra products alone need at this machine's matrix-product rate.
 
     Per qubit q and snapshot: 2 D_l c_l^2 chi_l chi_r^2 ... summed exactly over the snapshots' bonds of
     U^dag|b> (c) and of g (D) and the target's bonds; the rate is that of a (2048 x 32) @ (32 x 64)
-    product on one thread (real numbers for a real target), shared by ``workers`` threads.
+    product on one thread (real numbers for a real target, in the sweep's precision), shared by ``workers`` threads.
     """
     _, ranks = sn.compress_states(sn.setting_states(ens, settings))
     macs = 0.0
@@ -84,7 +86,9 @@ def target_products_floor(inverse, tensors, ens, settings, workers):
     real = not np.iscomplexobj(tensors[0])
     if real:  # a real target: real products on the (re, im) planes, twice the rows of real numbers
         macs *= 2
-    x, y = np.ones((2048, 32), dtype=float if real else complex), np.ones((32, 64), dtype=float if real else complex)
+    real_type, complex_type = sn.PRECISIONS[precision]
+    dtype = real_type if real else complex_type
+    x, y = np.ones((2048, 32), dtype=dtype), np.ones((32, 64), dtype=dtype)
     with single_threaded_blas():
         x @ y
         start = time.perf_counter()
@@ -106,21 +110,23 @@ def main(quick: bool):
                             bits[:1])  # builds the two-qubit Clifford table once, outside the timings
     print(f"{n}-site random MPS targets of bond {chi}, depth-{depth} brickwork, {n_snapshots} snapshots "
           f"(baseline on {n_baseline}), {spare_workers()} threads")
-    print(f"{'target':>8} {'D':>3} {'fit s':>7} {'rms r':>9} {'max |r| (sampled)':>18} {'ours ms/snap':>13} "
+    print(f"{'target':>8} {'D':>3} {'numbers':>8} {'fit s':>7} {'rms r':>9} {'max |r| (sampled)':>18} {'ours ms/snap':>13} "
           f"{'baseline ms/snap':>17} {'ratio':>7} {'max |diff|':>11} {'floor ms/snap':>14}")
-    runs = [("complex", bond) for bond in ((4, 8) if quick else (4, 6, 8))] + [("real", 8)]
-    for dtype, bond in runs:
+    runs = [("complex", bond, "double") for bond in ((4, 8) if quick else (4, 6, 8))]
+    runs += [("complex", 8, "single"), ("real", 8, "double"), ("real", 8, "single")]
+    for dtype, bond, precision in runs:
         tensors = mps_site_tensors(qtn.MPS_rand_state(n, chi, dtype="float64" if dtype == "real" else complex,
                                                       seed=0))
         inverse, fit_time = timed(partial(sn.shallow_inverse, ens, bond=bond))
-        ours, t_ours = timed(partial(sn.shallow_fidelity_mps, inverse, tensors, ens, settings, index, bits))
+        ours, t_ours = timed(partial(sn.shallow_fidelity_mps, inverse, tensors, ens, settings, index, bits,
+                                     precision=precision))
         base, t_base = timed(partial(baseline, inverse, tensors, ens, settings, index[:n_baseline],
                                      bits[:n_baseline]))
         per_ours, per_base = 1e3 * t_ours / n_snapshots, 1e3 * t_base / n_baseline
-        print(f"{dtype:>8} {bond:>3} {fit_time:>7.2f} {inverse.rms_residual:>9.2e} {inverse.max_residual:>18.2e} "
+        print(f"{dtype:>8} {bond:>3} {precision:>8} {fit_time:>7.2f} {inverse.rms_residual:>9.2e} {inverse.max_residual:>18.2e} "
               f"{per_ours:>13.1f} {per_base:>17.1f} {per_base / per_ours:>7.1f} "
               f"{np.max(np.abs(ours[:n_baseline] - base)):>11.1e} "
-              f"{target_products_floor(inverse, tensors, ens, settings, spare_workers()):>14.1f}")
+              f"{target_products_floor(inverse, tensors, ens, settings, spare_workers(), precision):>14.1f}")
     print("floor: the target's two matrix products per qubit alone (bra and ket over the bonds of g and of U^dag|b>),")
     print("at this machine's rate for such products, shared by the threads: the qubit maps come on top")
 

@@ -337,7 +337,7 @@ def local_route_target(target):
 
 
 def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bits: np.ndarray,
-                       inverse=None, inv_lambda=3.0) -> np.ndarray:
+                       inverse=None, inv_lambda=3.0, precision: str = "double") -> np.ndarray:
     """Per-snapshot fidelity estimates f_s (N,) for any ensemble; their mean estimates <psi|rho|psi>.
 
     ``target``: numpy state vector or quimb MPS. Local ensemble: MPS targets
@@ -345,8 +345,9 @@ def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bi
     ensemble and shallow circuits up to EXACT_SHALLOW_QUBITS: exact dense
     routes (an MPS target is made dense). Larger shallow circuits: the fitted
     inverse ``inverse`` (default :func:`shallow_network.shallow_inverse`), biased
-    by at most its ``bias_bound``. ``inv_lambda``: the local ensemble's 1/lambda
-    per qubit (3, or calibrated values).
+    by at most its ``bias_bound``, swept in ``precision`` ("double", or
+    "single": see :func:`shallow_network.sweep_precision`). ``inv_lambda``: the
+    local ensemble's 1/lambda per qubit (3, or calibrated values).
     """
     if ensemble.is_local:
         basis = settings.basis[np.asarray(setting_index, dtype=np.int64)]
@@ -357,7 +358,8 @@ def fidelity_snapshots(target, ensemble, settings, setting_index: np.ndarray, bi
         from manybody.estimation.shallow_network import shallow_fidelity_mps, shallow_inverse
 
         inverse = shallow_inverse(ensemble) if inverse is None else inverse
-        return shallow_fidelity_mps(inverse, as_mps(target), ensemble, settings, setting_index, bits)
+        return shallow_fidelity_mps(inverse, as_mps(target), ensemble, settings, setting_index, bits,
+                                    precision=precision)
     if ensemble.n_qubits > MAX_DENSE_QUBITS:
         raise InputError(f"fidelity with the {ensemble.kind} ensemble needs a dense target of at most "
                          f"{MAX_DENSE_QUBITS} qubits; this one has {ensemble.n_qubits}")

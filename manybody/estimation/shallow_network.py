@@ -41,6 +41,7 @@ Gates must act on neighbouring qubits (chain couplings, brickwork).
 
 from __future__ import annotations
 
+import hashlib
 import itertools
 import weakref
 from dataclasses import dataclass
@@ -72,6 +73,7 @@ TYPICAL_PHI_BOND = 4
 RIDGE = 1e-12
 
 _INVERSES: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+_PRECISIONS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 
 
 # ----------------------------------------------------------------- MPS helpers
@@ -368,6 +370,8 @@ def compress_states(tensors) -> tuple[list[np.ndarray], np.ndarray]:
     return tensors, ranks
 
 
+#: number types of the snapshot sweep (real, complex) for each precision
+PRECISIONS = {"double": (np.float64, np.complex128), "single": (np.float32, np.complex64)}
 #: per-qubit maps of (g bond, phi bonds) up to this many rows x columns are applied as one dense matrix
 DENSE_MAP_ENTRIES = 1 << 12
 #: a + ib acting on (re, im) planes: [[a, -b], [b, a]]
@@ -375,10 +379,11 @@ _PLANE_REAL, _PLANE_IMAG = np.eye(2), np.array([[0.0, -1.0], [1.0, 0.0]])
 
 
 def _on_planes(m):
-    """A complex map (s, R' x, R y) as a real one on (re, im) planes: (s, R' 2 x, R 2 y)."""
+    """A complex map (s, R' x, R y) as a real one on (re, im) planes: (s, R' 2 x, R 2 y), in m's precision."""
     s, rows, cols = m.shape
     m = m.reshape(s, rows // 2, 1, 2, cols // 2, 1, 2)
-    out = m.real * _PLANE_REAL[:, None, None, :, None] + m.imag * _PLANE_IMAG[:, None, None, :, None]
+    real, imag = _PLANE_REAL.astype(m.real.dtype), _PLANE_IMAG.astype(m.real.dtype)
+    out = m.real * real[:, None, None, :, None] + m.imag * imag[:, None, None, :, None]
     return out.reshape(s, 2 * rows, 2 * cols)
 
 
@@ -397,7 +402,7 @@ def _qubit_map(phi, g_keep, g_trace, planes: int):
     s, c, _, cr = phi.shape
     keep = np.einsum("scxC,sdyD->sCDxcdy", phi, phi.conj()).reshape(s, cr * cr * 2, c * c * 2)
     both = np.einsum("scuC,sduD->sCDcd", phi, phi.conj())
-    trace = np.einsum("sCDcd,xy->sCDxcdy", both, np.eye(2)).reshape(s, cr * cr * 2, c * c * 2)
+    trace = np.einsum("sCDcd,xy->sCDxcdy", both, np.eye(2, dtype=phi.real.dtype)).reshape(s, cr * cr * 2, c * c * 2)
     if planes == 2:
         keep, trace = _on_planes(keep), _on_planes(trace)
     dl, dr = g_keep.shape
@@ -440,16 +445,17 @@ def _site_step(env, kety, bra_rows, phi, g_keep, g_trace):
     return out.reshape(s, dr, cr, cr, planes, right, right)
 
 
-def _qubit_factors(kets, g) -> list[tuple]:
+def _qubit_factors(kets, g, dtype) -> list[tuple]:
     """Per qubit what every snapshot's sweep uses: (kety, bra_rows, g_keep, g_trace) (see :func:`_site_step`).
 
-    ``kets`` are the target's tensors as (left, physical, right), all complex or all real; ``g`` the fit's tensors.
+    ``kets`` are the target's tensors as (left, physical, right), all complex or all real; ``g`` the fit's
+    tensors; ``dtype`` that of the sweep (a real or complex type of single or double precision).
     """
     out = []
     for ket, gq in zip(kets, g):
-        out.append((np.ascontiguousarray(ket.transpose(1, 0, 2)),
-                    np.ascontiguousarray(ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1)),
-                    gq[:, 1, :].astype(ket.dtype), 0.5 * (gq[:, 0, :] - gq[:, 1, :]).astype(ket.dtype)))
+        out.append(tuple(np.ascontiguousarray(f, dtype=dtype) for f in (
+            ket.transpose(1, 0, 2), ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1),
+            gq[:, 1, :], 0.5 * (gq[:, 0, :] - gq[:, 1, :]))))
     return out
 
 
@@ -492,7 +498,8 @@ def _sandwich(factors, phi, ranks, which, flip_x, flip_z) -> np.ndarray:
 
 
 def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, setting_index, bits,
-                         chunk: int | None = None, workers: int | None = None) -> np.ndarray:
+                         chunk: int | None = None, workers: int | None = None,
+                         precision: str = "double") -> np.ndarray:
     """f_i = <psi| G(U_i^dag|b_i><b_i|U_i) |psi> for shallow snapshots and an MPS target: (N,).
 
     ``inverse`` from :func:`shallow_inverse` (g ~ 1/lambda, bias at most
@@ -506,8 +513,12 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     the flip generators selected by b) and the sweep of :func:`_sandwich`.
     Chunks run on ``workers`` threads (default: the spare cores, see
     manybody.threads) with BLAS on one thread; each chunk is computed alone,
-    so the values do not depend on the number of threads.
+    so the values do not depend on the number of threads. ``precision``
+    "single" sweeps in single-precision numbers: twice as fast, with a
+    rounding error that :func:`single_precision_rounding` measures.
     """
+    if precision not in PRECISIONS:
+        raise InputError(f"precision {precision!r}: choose one of {', '.join(PRECISIONS)}")
     tensors = target if isinstance(target, (list, tuple)) else mps_site_tensors(target)
     n = ensemble.n_qubits
     if len(tensors) != n:
@@ -516,7 +527,8 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     real = not any(np.iscomplexobj(a) and np.any(np.asarray(a).imag) for a in tensors)
     kets = [np.asarray(a).real.astype(float).transpose(0, 2, 1) if real else
             np.asarray(a, dtype=complex).transpose(0, 2, 1) for a in tensors]
-    factors = _qubit_factors(kets, inverse.inverse)  # once, shared by every chunk
+    real_type, complex_type = PRECISIONS[precision]
+    factors = _qubit_factors(kets, inverse.inverse, real_type if real else complex_type)  # shared by every chunk
     setting_index = np.asarray(setting_index, dtype=np.int64)
     bits = np.asarray(bits, dtype=np.int64)
     order = np.argsort(setting_index, kind="stable")
@@ -524,13 +536,15 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     bond = max(a.shape[0] for a in inverse.inverse)
     workers = spare_workers() if workers is None else workers
     if chunk is None:  # in cache, and with several threads at least two chunks each
-        chunk = min(MAX_CHUNK, CHUNK_BYTES // (16 * 2 * TYPICAL_PHI_BOND**2 * bond * chi**2))
+        per_snapshot = np.dtype(complex_type).itemsize * 2 * TYPICAL_PHI_BOND**2 * bond * chi**2
+        chunk = min(MAX_CHUNK, CHUNK_BYTES // per_snapshot)
         chunk = max(1, min(chunk, -(-len(order) // (2 * workers))) if workers > 1 else chunk)
 
     def one(rows):
         distinct, which = np.unique(setting_index[rows], return_inverse=True)
         sub = settings.take(distinct)
         phi, ranks = compress_states(setting_states(ensemble, sub))
+        phi = [f.astype(complex_type, copy=False) for f in phi]
         gen = flip_generators(ensemble, sub)[which]  # (S, j, qubit)
         flip_x = np.einsum("sj,sjq->sq", bits[rows], (gen & 1).astype(np.int64)) & 1
         flip_z = np.einsum("sj,sjq->sq", bits[rows], (gen >> 1).astype(np.int64)) & 1
@@ -542,3 +556,62 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     for rows, values in zip(chunks, ordered_map_one_blas(one, chunks, min(workers, len(chunks)))):
         out[rows] = values
     return out
+
+
+#: snapshots on which the single-precision sweep is compared with the double one
+ROUNDING_SNAPSHOTS = 16
+#: the largest difference seen on them, times this margin, is the rounding bound (common practice, no source)
+ROUNDING_MARGIN = 10.0
+#: single precision is used while its rounding bound is at most this share of the fit's bias bound
+ROUNDING_SHARE = 0.1
+
+
+@dataclass(frozen=True)
+class SweepPrecision:
+    """The precision of the snapshot sweep and the bound on its rounding error per snapshot value.
+
+    ``measured``: the largest |single - double| over ``snapshots`` random snapshots of the
+    ensemble; ``rounding_bound`` is ROUNDING_MARGIN times that in single precision, 0 in double.
+    """
+
+    precision: str
+    rounding_bound: float
+    measured: float
+    snapshots: int
+
+
+def sweep_precision(inverse: ShallowInverse, target, ensemble, snapshots: int = ROUNDING_SNAPSHOTS,
+                    seed: int = 0) -> SweepPrecision:
+    """Single precision when its rounding is negligible beside the fit's bias, else double.
+
+    ``snapshots`` random settings of ``ensemble`` with random outcome bits are
+    swept in both precisions; their largest difference times ROUNDING_MARGIN
+    bounds the rounding of a snapshot value (an estimate: a sample, like the
+    residual beyond EXHAUSTIVE_QUBITS). Single precision is chosen when that
+    bound is at most ROUNDING_SHARE of ``inverse.bias_bound``; double
+    precision rounds at about 1e-13 of the values, far below any fit residual,
+    and is counted as zero.
+    """
+    tensors = target if isinstance(target, (list, tuple)) else mps_site_tensors(target)
+    digest = hashlib.blake2b(digest_size=16)
+    for a in tensors:
+        a = np.ascontiguousarray(a)
+        digest.update(repr((a.shape, a.dtype.str)).encode())
+        digest.update(a.tobytes())
+    key = (id(inverse), digest.hexdigest(), snapshots, seed)
+    cache = _PRECISIONS.setdefault(ensemble, {})
+    if key in cache and cache[key][0] is inverse:  # computed once per estimate, not once per part
+        return cache[key][1]
+    rng = np.random.default_rng(seed)
+    settings = ensemble.draw(snapshots, rng)
+    bits = rng.integers(0, 2, size=(snapshots, ensemble.n_qubits))
+    index = np.arange(snapshots)
+    single = shallow_fidelity_mps(inverse, tensors, ensemble, settings, index, bits, precision="single")
+    double = shallow_fidelity_mps(inverse, tensors, ensemble, settings, index, bits, precision="double")
+    measured = float(np.max(np.abs(single - double)))
+    if ROUNDING_MARGIN * measured <= ROUNDING_SHARE * inverse.bias_bound:
+        chosen = SweepPrecision("single", ROUNDING_MARGIN * measured, measured, snapshots)
+    else:
+        chosen = SweepPrecision("double", 0.0, measured, snapshots)
+    cache[key] = (inverse, chosen)
+    return chosen

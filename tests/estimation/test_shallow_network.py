@@ -250,3 +250,37 @@ def test_real_target_on_real_planes_equals_the_complex_route():
     phased = sn.shallow_fidelity_mps(inv, dense_to_tensors(np.exp(0.3j) * psi), ens, settings, idx, bits)
     np.testing.assert_allclose(real, phased, atol=1e-10)
     np.testing.assert_allclose(real, fid.shallow_fidelity(psi, ens, settings, idx, bits), atol=1e-8)
+
+
+def test_single_precision_sweep_within_its_rounding_bound_of_the_exact_values():
+    # the single-precision sweep against the exact dense Walsh-Hadamard route (docs/design.md section
+    # 4.5) on snapshots other than those sweep_precision compared: within the fit's bound plus the
+    # rounding bound; a coarse fit (bond 4 at 12 qubits, depth 3) takes single precision
+    n = 12
+    psi = random_state(n, 11)
+    ens, settings, idx, bits = shallow_setup(n, 3, 2, 12, 12, psi)
+    inv = sn.shallow_inverse(ens, bond=4)
+    chosen = sn.sweep_precision(inv, dense_to_tensors(psi), ens)
+    assert chosen.precision == "single" and 0 < chosen.rounding_bound <= sn.ROUNDING_SHARE * inv.bias_bound
+    single = sn.shallow_fidelity_mps(inv, dense_to_tensors(psi), ens, settings, idx, bits, precision="single")
+    double = sn.shallow_fidelity_mps(inv, dense_to_tensors(psi), ens, settings, idx, bits)
+    assert np.max(np.abs(single - double)) <= chosen.rounding_bound
+    exact = fid.shallow_fidelity(psi, ens, settings, idx, bits)
+    probs = fid.rotated_probabilities(psi, ens, settings)  # the per-snapshot bound of the test above
+    inv_lam = fid.inverse_eigenvalue_table(ens, fid.stabilizer_supports(ens, settings))
+    bound = inv.max_residual * (np.abs(walsh_hadamard(probs)) * inv_lam).sum(axis=1) / 2**n
+    assert np.all(np.abs(single - exact) <= bound[idx] + chosen.rounding_bound)
+    assert np.max(np.abs(single - double)) > 0  # the single sweep does round differently
+
+
+def test_an_exact_fit_keeps_double_precision():
+    # our own rule: single-precision rounding (~1e-6) is not negligible beside a fit exact to ~1e-11,
+    # so the sweep stays in double precision and adds no rounding bound
+    n = 10
+    ens = ShallowEnsemble(n, 2, chain(n))
+    inv = sn.shallow_inverse(ens, bond=16)
+    chosen = sn.sweep_precision(inv, qtn.MPS_rand_state(n, 4, dtype=complex, seed=2), ens)
+    assert inv.bias_bound < 1e-9 and chosen.precision == "double" and chosen.rounding_bound == 0.0
+    with pytest.raises(InputError, match="precision 'half'"):
+        sn.shallow_fidelity_mps(inv, qtn.MPS_rand_state(n, 4, seed=2), ens, ens.draw(1, 0), [0], np.zeros((1, n)),
+                                precision="half")
