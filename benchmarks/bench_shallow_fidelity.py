@@ -72,20 +72,20 @@ def baseline(inverse, tensors, ens, settings, setting_index, bits):
 def target_products_floor(inverse, tensors, ens, settings, workers, precision):
     """ms per snapshot that the target's ket and bra products alone need at this machine's matrix-product rate.
 
-    Per qubit q and snapshot: 2 D_l c_l^2 chi_l chi_r^2 ... summed exactly over the snapshots' bonds of
-    U^dag|b> (c) and of g (D) and the target's bonds; the rate is that of a (2048 x 32) @ (32 x 64)
+    Per qubit q and snapshot: 2 D_l c_l^2 chi_l^2 chi_r (ket) + 2 D_r c_r^2 chi_r^2 chi_l (bra), summed exactly
+    over the snapshots' bonds of U^dag|b> (c) and of g (D) and the target's bonds (a real target: two real
+    kets, one real bra); the rate is that of a (2048 x 32) @ (32 x 64)
     product on one thread (real numbers for a real target, in the sweep's precision), shared by ``workers`` threads.
     """
     _, ranks = sn.compress_states(sn.setting_states(ens, settings))
+    real = not np.iscomplexobj(tensors[0])
     macs = 0.0
     for q, a in enumerate(tensors):
         left, right = a.shape[:2]
         d_l, d_r = inverse.inverse[q].shape[0], inverse.inverse[q].shape[2]
         c_l, c_r = ranks[:, q].astype(float), ranks[:, q + 1].astype(float)
-        macs += np.mean(d_l * c_l**2 * left * left * 2 * right + d_r * c_r**2 * right * left * 2 * right)
-    real = not np.iscomplexobj(tensors[0])
-    if real:  # a real target: real products on the (re, im) planes, twice the rows of real numbers
-        macs *= 2
+        ket, bra = d_l * c_l**2 * left * left * 2 * right, d_r * c_r**2 * right * left * 2 * right
+        macs += np.mean(2 * ket + bra if real else ket + bra)  # a real target: R A and R^dag A, one real bra
     real_type, complex_type = sn.PRECISIONS[precision]
     dtype = real_type if real else complex_type
     x, y = np.ones((2048, 32), dtype=dtype), np.ones((32, 64), dtype=dtype)

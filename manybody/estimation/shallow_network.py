@@ -33,8 +33,9 @@ Three steps, all on matrix-product states (MPS) over the n support bits s_q
    (chi^2 D chi_phi^2 numbers, chi the target's bond), batched over the
    snapshots whose phi has the same bonds at that qubit. Cost per snapshot
    O(n D chi_phi^2 chi^3); at depth 3 the mean chi_phi^2 is about 5.6. A real
-   target sweeps real (re, im) planes; chunks of snapshots run on the spare
-   cores (docs/design.md section 4.5 has the costs and their floor).
+   target keeps the (Hermitian) environments real, Re E + Im E; chunks of
+   snapshots run on the spare cores, in single precision where its rounding
+   is negligible (docs/design.md section 4.5 has the costs and their floor).
 
 Gates must act on neighbouring qubits (chain couplings, brickwork).
 """
@@ -374,20 +375,16 @@ def compress_states(tensors) -> tuple[list[np.ndarray], np.ndarray]:
 PRECISIONS = {"double": (np.float64, np.complex128), "single": (np.float32, np.complex64)}
 #: per-qubit maps of (g bond, phi bonds) up to this many rows x columns are applied as one dense matrix
 DENSE_MAP_ENTRIES = 1 << 12
-#: a + ib acting on (re, im) planes: [[a, -b], [b, a]]
-_PLANE_REAL, _PLANE_IMAG = np.eye(2), np.array([[0.0, -1.0], [1.0, 0.0]])
 
 
-def _on_planes(m):
-    """A complex map (s, R' x, R y) as a real one on (re, im) planes: (s, R' 2 x, R 2 y), in m's precision."""
+def _hermitian_parts(m):
+    """A complex map (s, R', R y) as the real one (s, R', R 2 y) that acts on (R A, R^dag A) (see _site_step)."""
     s, rows, cols = m.shape
-    m = m.reshape(s, rows // 2, 1, 2, cols // 2, 1, 2)
-    real, imag = _PLANE_REAL.astype(m.real.dtype), _PLANE_IMAG.astype(m.real.dtype)
-    out = m.real * real[:, None, None, :, None] + m.imag * imag[:, None, None, :, None]
-    return out.reshape(s, 2 * rows, 2 * cols)
+    m = m.reshape(s, rows, cols // 2, 1, 2)
+    return np.concatenate([m.real, m.imag], axis=3).reshape(s, rows, 2 * cols)
 
 
-def _qubit_map(phi, g_keep, g_trace, planes: int):
+def _qubit_map(phi, g_keep, g_trace, hermitian: bool):
     """The qubit's map of (d, c, c', y) to (D, C, C', x) for each snapshot, whole or as its factors.
 
     Keep part: g1[d, D] phi[c, x, C] phi^*[c', y, C']; trace part:
@@ -396,17 +393,18 @@ def _qubit_map(phi, g_keep, g_trace, planes: int):
     matrix is small; else the phi factors keep and trace, (s, C C' x, c c' y)
     each, with the order in which the g factors (real, shared) are applied:
     "g first" when the phi bonds grow at this qubit (g acts on the smaller
-    side), "phi first" when they shrink. With ``planes`` = 2 the maps act on
-    real (re, im) planes placed before x and y.
+    side), "phi first" when they shrink. ``hermitian``: the maps are real
+    and act on the two parts (R A, R^dag A) placed before y (:func:`_site_step`).
     """
     s, c, _, cr = phi.shape
     keep = np.einsum("scxC,sdyD->sCDxcdy", phi, phi.conj()).reshape(s, cr * cr * 2, c * c * 2)
     both = np.einsum("scuC,sduD->sCDcd", phi, phi.conj())
     trace = np.einsum("sCDcd,xy->sCDxcdy", both, np.eye(2, dtype=phi.real.dtype)).reshape(s, cr * cr * 2, c * c * 2)
-    if planes == 2:
-        keep, trace = _on_planes(keep), _on_planes(trace)
+    parts = 2 if hermitian else 1
+    if hermitian:
+        keep, trace = _hermitian_parts(keep), _hermitian_parts(trace)
     dl, dr = g_keep.shape
-    if dl * dr * keep.shape[1] * keep.shape[2] > DENSE_MAP_ENTRIES * planes**2:
+    if dl * dr * keep.shape[1] * keep.shape[2] > DENSE_MAP_ENTRIES * parts:
         return ("g first" if cr >= c else "phi first"), keep, trace
     m = np.einsum("dD,sij->sDidj", g_keep, keep) + np.einsum("dD,sij->sDidj", g_trace, trace)
     return "dense", m.reshape(s, dr * keep.shape[1], dl * keep.shape[2])
@@ -415,34 +413,45 @@ def _qubit_map(phi, g_keep, g_trace, planes: int):
 def _site_step(env, kety, bra_rows, phi, g_keep, g_trace):
     """One qubit of <psi| G(|phi><phi|) |psi> for a group of snapshots of equal bonds.
 
-    env[s, d, c, c', p, a', a] (snapshot; bonds of g, phi, phi^*; plane; bonds
-    of bra and ket) -> the same after the qubit. ``kety`` is the target's
-    tensor as (y, a, A), ``bra_rows`` its conjugate as (A', x a'). For a
-    complex target there is one complex plane; for a real one the environment
-    is real with two planes (re, im), so the target's products cost half.
-    Three steps, all matrix products: the ket (batched over s d c c' p), the
-    qubit's map of (d, c, c', p, y) per snapshot (:func:`_qubit_map`: one
-    dense matrix, or g and the phi factors one after the other), and the bra
-    (batched over s D C C' p), which leaves the result in the layout it
-    started from.
+    env[s, d, c, c', a', a] (snapshot; bonds of g, phi, phi^*, bra and ket)
+    -> the same after the qubit. ``kety`` is the target's tensor as (y, a,
+    A), ``bra_rows`` its conjugate as (A', x a'). Three steps, all matrix
+    products: the ket (batched over s d c c'), the qubit's map of (d, c, c',
+    y) per snapshot (:func:`_qubit_map`: one dense matrix, or g and the phi
+    factors one after the other), and the bra (batched over s D C C'), which
+    leaves the result in the layout it started from.
+
+    A real target keeps the environment real: E[(c a), (c' a')] is Hermitian
+    (swapping ket and bra conjugates it, g being real), so R = Re E + Im E
+    holds all of it (Re E = (R + R^dag)/2 and Im E = (R - R^dag)/2, R^dag
+    swapping c, c' and a, a'). The ket takes R A and R^dag A; the complex map
+    m = a + ib then gives Re E' + Im E' before the bra as a (R A) + b (R^dag A),
+    and the real bra keeps the encoding: three real products where the
+    complex route has two complex ones (eight real).
     """
-    s, d, c, c2, planes, bra, kt = env.shape
+    s, d, c, c2, bra, kt = env.shape
     right, cr, dr = kety.shape[2], phi.shape[3], g_keep.shape[1]
-    x = np.matmul(env.reshape(-1, 1, bra, kt), kety)  # [s d c c' p, y, a', A]
-    rows, cols = c * c2 * planes * 2, bra * right
-    kind, *maps = _qubit_map(phi, g_keep, g_trace, planes)
+    hermitian = not np.iscomplexobj(env)
+    if hermitian:  # [s, d, c, c', part, y, a', A]: part 0 R A, part 1 R^dag A
+        x = np.empty((s, d, c, c2, 2, 2, bra, right), dtype=env.dtype)
+        np.matmul(env[:, :, :, :, None], kety, out=x[:, :, :, :, 0])
+        np.matmul(env.transpose(0, 1, 3, 2, 5, 4)[:, :, :, :, None], kety, out=x[:, :, :, :, 1])
+    else:
+        x = np.matmul(env.reshape(-1, 1, bra, kt), kety)  # [s d c c', y, a', A]
+    rows, cols = c * c2 * (2 if hermitian else 1) * 2, bra * right
+    kind, *maps = _qubit_map(phi, g_keep, g_trace, hermitian)
     if kind == "dense":
-        out = np.matmul(maps[0], x.reshape(s, d * rows, cols))  # [s, (D C C' p x), (a' A)]
-    elif kind == "g first":  # g on (d) into (D, keep or trace), then [keep | trace] on (part, c c' p y)
+        out = np.matmul(maps[0], x.reshape(s, d * rows, cols))  # [s, (D C C' x), (a' A)]
+    elif kind == "g first":  # g on (d) into (D, keep or trace), then [keep | trace] on (part, c c' y)
         g_both = np.stack([g_keep.T, g_trace.T], axis=1).reshape(2 * dr, d)
         xg = np.matmul(g_both, x.reshape(s, d, rows * cols)).reshape(s, dr, 2 * rows, cols)
         out = np.matmul(np.concatenate(maps, axis=2)[:, None], xg)
-    else:  # [keep; trace] on (c c' p y) into (part, C C' p x), then g on (d, part)
+    else:  # [keep; trace] on (c c' y) into (part, C C' x), then g on (d, part)
         y = np.matmul(np.concatenate(maps, axis=1)[:, None], x.reshape(s, d, rows, cols))
         g_both = np.stack([g_keep, g_trace], axis=1).reshape(2 * d, dr).T
         out = np.matmul(g_both, y.reshape(s, 2 * d, -1))
-    out = np.matmul(bra_rows, out.reshape(-1, 2 * bra, right))  # [s D C C' p, A', A]
-    return out.reshape(s, dr, cr, cr, planes, right, right)
+    out = np.matmul(bra_rows, out.reshape(-1, 2 * bra, right))  # [s D C C', A', A]
+    return out.reshape(s, dr, cr, cr, right, right)
 
 
 def _qubit_factors(kets, g, dtype) -> list[tuple]:
@@ -463,7 +472,7 @@ def _sandwich(factors, phi, ranks, which, flip_x, flip_z) -> np.ndarray:
     """<psi| G(|phi_i><phi_i|) |psi> for every snapshot i, phi_i = P_i phi_(setting of i): (S,).
 
     ``factors`` from :func:`_qubit_factors`; a real target (real factors)
-    sweeps real (re, im) planes. Snapshots are
+    sweeps real environments (:func:`_site_step`). Snapshots are
     grouped, qubit by qubit, by the bonds of their phi on both sides of the
     qubit, so no work is spent on padding; within a group everything is a
     batched matrix product. P_i = X^x Z^z per qubit (its phase cancels in
@@ -472,10 +481,7 @@ def _sandwich(factors, phi, ranks, which, flip_x, flip_z) -> np.ndarray:
     count = len(which)
     snap_rank = ranks[which]
     sign = 1 - 2 * flip_z.astype(np.int8)
-    dtype = factors[0][0].dtype
-    planes = 1 if np.iscomplexobj(factors[0][0]) else 2
-    start = np.zeros((count, 1, 1, 1, planes, 1, 1), dtype=dtype)
-    start[:, :, :, :, 0] = 1.0
+    start = np.ones((count, 1, 1, 1, 1, 1), dtype=factors[0][0].dtype)
     envs = {1: (np.arange(count), start)}
     for q, (kety, bra_rows, g_keep, g_trace) in enumerate(factors):
         parts: dict = {}
@@ -493,7 +499,7 @@ def _sandwich(factors, phi, ranks, which, flip_x, flip_z) -> np.ndarray:
                 for r, ps in parts.items()}
     rows, env = envs[1]
     out = np.empty(count)
-    out[rows] = env.reshape(len(rows), planes)[:, 0].real
+    out[rows] = env.reshape(len(rows)).real  # E is 1 x 1 and real: R = E
     return out
 
 
