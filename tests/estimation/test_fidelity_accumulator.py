@@ -53,10 +53,11 @@ def test_shallow_fidelity_beyond_the_exact_size_carries_the_fit_residual():
     bits, _ = sample_mps(qtn.MPS_ghz_state(n), ens, settings, 1, rng)  # exact: bond 2 never truncated
     shadow = Shadow(ensemble=ens, settings=settings, qubit_site=np.arange(n), record_setting=settings.ids,
                     outcomes=bits, counts=np.ones(600, np.int64))
-    bias = shallow_inverse(ens).bias_bound
     for target, value in ((qtn.MPS_computational_state("0" * n), 0.5), (ghz, 1.0)):
         result = estimate(shadow, None, quantities=("fidelity",), options={"target": target})
         attrs = result.fidelity.attrs
+        bias = shallow_inverse(ens, bond=int(attrs["inverse_bond"])).bias_bound  # the bond the estimate chose
+        assert attrs["inverse_bias_bound"] == bias
         assert attrs["inverse_max_residual_over"] == "all support patterns"
         # our own rule: the sweep's rounding bound (single precision when it is at most a tenth of the
         # bias bound, docs/design.md section 4.5) is added to the bias bound

@@ -57,7 +57,7 @@ def test_fit_residual_reported_exactly_and_shrinks_with_bond():
     lam = np.array([ens.eigenvalue(p) for p in patterns])  # the chain itself, not the MPS
     rms = []
     for bond in (2, 4):
-        inv = sn.shallow_inverse(ens, bond=bond)
+        inv = sn.shallow_inverse(ens, bond=bond, weight=0.5)
         r = lam * sn.mps_values(inv.inverse, patterns) - 1.0
         assert inv.exhaustive and inv.checked_patterns == 2**n
         assert inv.max_residual == pytest.approx(np.abs(r).max(), rel=1e-8)
@@ -65,6 +65,13 @@ def test_fit_residual_reported_exactly_and_shrinks_with_bond():
         assert inv.rms_residual == pytest.approx(np.sqrt(np.mean(r**2)), rel=1e-6)
         rms.append(inv.rms_residual)
     assert rms[1] < 0.1 * rms[0]
+    # the default weight 0.3 per bit: the mean with weights 0.7^(n - |s|) 0.3^|s|
+    inv = sn.shallow_inverse(ens, bond=4)
+    r = lam * sn.mps_values(inv.inverse, patterns) - 1.0
+    w = 0.3 ** patterns.sum(axis=1) * 0.7 ** (n - patterns.sum(axis=1))
+    assert inv.rms_residual == pytest.approx(np.sqrt(np.sum(w * r**2)), rel=1e-6)
+    by_weight = [np.abs(r[patterns.sum(axis=1) == k]).max() for k in range(n + 1)]
+    np.testing.assert_allclose(inv.max_residual_by_weight, by_weight, rtol=1e-8)
 
 
 def test_tiny_fit_residual_is_reported_not_rounded_to_zero():
@@ -75,7 +82,7 @@ def test_tiny_fit_residual_is_reported_not_rounded_to_zero():
     ens = ShallowEnsemble(n, 2, chain(n))
     patterns = all_patterns(n)
     lam = np.array([ens.eigenvalue(p) for p in patterns])
-    inv = sn.shallow_inverse(ens, bond=8)
+    inv = sn.shallow_inverse(ens, bond=8, weight=0.5)
     r = lam * sn.mps_values(inv.inverse, patterns) - 1.0
     direct = np.sqrt(np.mean(r**2))
     assert 0 < direct < 1e-8
@@ -284,3 +291,93 @@ def test_an_exact_fit_keeps_double_precision():
     with pytest.raises(InputError, match="precision 'half'"):
         sn.shallow_fidelity_mps(inv, qtn.MPS_rand_state(n, 4, seed=2), ens, ens.draw(1, 0), [0], np.zeros((1, n)),
                                 precision="half")
+
+
+# ------------------------------------------------------- the bias bound by support weight
+def test_weight_bias_bound_is_the_linear_programme_maximum():
+    # max sum_w m_w T_w subject to 0 <= T_w <= 2^-n C(n, w) 3^w and sum_w T_w <= 1, against scipy's
+    # linear-programming solver (scipy.optimize.linprog, HiGHS)
+    from scipy.optimize import linprog
+
+    rng = np.random.default_rng(3)
+    for n in (6, 12, 40):
+        caps = sn.weight_caps(n)
+        # 2^-n sum_w C(n, w) 3^w = 2^n (binomial theorem): the caps only bind for few-body weights
+        assert caps[0] == pytest.approx(2.0**-n) and caps[n // 2] == 1.0
+        for _ in range(5):
+            m = rng.random(n + 1) * 10.0 ** rng.uniform(-4, 0, n + 1)
+            lp = linprog(-m, A_ub=np.ones((1, n + 1)), b_ub=[1.0], bounds=list(zip(np.zeros(n + 1), caps)))
+            assert sn.weight_bias_bound(m, n) == pytest.approx(-lp.fun, rel=1e-9, abs=1e-15)
+            assert sn.weight_bias_bound(m, n) <= m.max()
+
+
+def pauli_expectations(psi):
+    """<psi|P|psi> (Hermitian P = i^|x&z| X^x Z^z) and the support x|z of every Pauli, both (2^n, 2^n) [x, z]."""
+    from scipy.linalg import hadamard
+
+    dim = len(psi)
+    b = np.arange(dim)
+    u = np.conj(psi[b[None, :] ^ b[:, None]]) * psi[None, :]  # u[x, b] = psi*(b ^ x) psi(b)
+    xz = u @ hadamard(dim)  # <psi|X^x Z^z|psi> = sum_b (-1)^(z.b) u[x, b] (Sylvester ordering)
+    overlap = np.vectorize(lambda k: bin(k).count("1"))(b[:, None] & b[None, :])
+    return (1j) ** overlap * xz, b[:, None] | b[None, :]
+
+
+def test_exact_bias_of_a_coarse_fit_within_the_weight_bound():
+    # E[f] - F = 2^-n sum_P r(supp P) tr(P rho) tr(P psi) (the channel's Pauli-diagonal definition, docs/
+    # design.md section 4.5), summed over all 4^n Paulis for pure rho and psi: within the weight-aware
+    # bound, which for this fit (worst residual on one-qubit supports) is below max|r|
+    n = 10
+    ens = ShallowEnsemble(n, 3, chain(n))
+    inv = sn.shallow_inverse(ens, bond=4)
+    assert inv.bias_bound < 0.7 * inv.max_residual
+    patterns = all_patterns(n)
+    r = sn.mps_values(inv.eigenvalues, patterns) * sn.mps_values(inv.inverse, patterns) - 1.0
+    zero = np.zeros(2**n)
+    zero[0] = 1.0
+    ghz = np.zeros(2**n)
+    ghz[[0, -1]] = 1 / np.sqrt(2)
+    states = [zero, ghz, np.full(2**n, 2 ** (-n / 2)), random_state(n, 1), random_state(n, 2)]
+    for rho, psi in [(zero, zero), (ghz, ghz), (states[2], states[2]), (states[3], states[3]),
+                     (states[3], states[4]), (ghz, states[2])]:
+        e_rho, support = pauli_expectations(rho)
+        e_psi, _ = pauli_expectations(psi)
+        bias = np.sum(r[support] * e_rho * e_psi).real / 2**n
+        assert abs(bias) <= inv.bias_bound * (1 + 1e-9)
+    # the same definition reproduces tr(rho psi) with r -> 1 (g = 1/lambda would give f's mean = F)
+    e_psi, _ = pauli_expectations(states[3])
+    assert np.sum(e_psi * e_psi).real / 2**n == pytest.approx(1.0, rel=1e-10)
+
+
+def test_residual_patterns_visit_every_weight_beyond_the_exhaustive_size():
+    # our own sampling rule: every weight 0..n is checked, few-body and nearly full supports all of them
+    n = 40
+    patterns, exhaustive = sn.residual_patterns(n, np.random.default_rng(0))
+    weights = np.bincount(patterns.sum(axis=1), minlength=n + 1)
+    assert not exhaustive and np.all(weights > 0)
+    assert weights[1] == n and weights[2] == n * (n - 1) // 2 and weights[n - 1] == n
+    assert weights[3] == weights[n // 2] == sn.SAMPLED_PATTERNS // (n - 5)
+
+
+def test_fitted_route_takes_the_cheapest_bond_whose_bias_is_negligible():
+    # our own rule (docs/design.md section 4.5, no outside source): the pilot's spread over sqrt(N) is the
+    # expected error; the bond is the first of BONDS whose bias bound is at most BIAS_SHARE of it
+    n = 20
+    state = qtn.MPS_rand_state(n, 4, seed=4)
+    ens, settings, idx, bits = mps_snapshots(state, n, 3, 48, 1, 6)
+    pilot = sn.shallow_fidelity_mps(sn.shallow_inverse(ens, bond=sn.PILOT_BOND), state, ens, settings, idx, bits,
+                                    precision="single")
+    chosen = []
+    for n_snapshots in (10, 10**4, 10**8):
+        route = sn.fitted_route(ens, state, settings, idx, bits, n_snapshots)
+        expected = np.std(pilot, ddof=1) / np.sqrt(n_snapshots)
+        assert route.expected_error == pytest.approx(expected, rel=1e-9) and route.pilot_snapshots == 48
+        bonds = list(sn.BONDS)
+        k = bonds.index(route.inverse.bond)
+        fits = route.inverse.bias_bound <= sn.BIAS_SHARE * expected
+        assert fits or k == len(bonds) - 1
+        assert all(sn.shallow_inverse(ens, bond=b).bias_bound > sn.BIAS_SHARE * expected for b in bonds[:k])
+        chosen.append(route.inverse.bond)
+    assert chosen[0] < chosen[-1]  # more snapshots, a finer fit
+    assert sn.fitted_route(ens, state, settings, idx, bits, 10**4) is sn.fitted_route(ens, state, settings, idx,
+                                                                                      bits, 10**4)  # cached

@@ -8,7 +8,10 @@ blocks of settings. Robust (calibrated) estimates take one noisy eigenvalue
 per qubit, so they need the local ensemble.
 
 Shallow circuits beyond the exact size use a fitted inverse channel whose
-residual r = lambda g - 1 bounds the bias, |E[f] - F| <= max |r|. The
+residual r = lambda g - 1 bounds the bias (at most max |r|, less when the
+worst residuals sit on few-body supports). Its bond is the cheapest whose
+bound is negligible beside the statistical error that a pilot of the
+shadow's own snapshots predicts (:func:`shallow_network.fitted_route`). The
 snapshots are swept in single precision when its measured rounding is
 negligible beside that bound (:func:`shallow_network.sweep_precision`); the
 bias bound plus the rounding bound is added to the error bar in quadrature
@@ -28,6 +31,17 @@ from manybody.estimation.fidelity import as_mps, fidelity_snapshots, local_route
 #: records per part with the fitted inverse (tens of ms per snapshot): the parts share the cores and the
 #: progress bar moves every few seconds
 NETWORK_PART_RECORDS = 256
+#: records whose values estimate the spread of the snapshot values, for the choice of the inverse's bond
+PILOT_SNAPSHOTS = 64
+
+
+def pilot_snapshots(shadow, count: int = PILOT_SNAPSHOTS) -> tuple[np.ndarray, np.ndarray]:
+    """``count`` records spread evenly over the shadow: (setting positions, outcome bits), one snapshot each."""
+    starts = np.unique(np.linspace(0, max(shadow.n_records - 1, 0), count).astype(np.int64))
+    parts = [next(shadow.chunks(1, int(start), int(start) + 1)) for start in starts] if shadow.n_records else []
+    if not parts:
+        return np.zeros(0, dtype=np.int64), np.zeros((0, shadow.n_qubits), dtype=np.uint8)
+    return np.concatenate([p for p, _, _ in parts]), np.concatenate([b for _, b, _ in parts])
 
 
 class Fidelity(Accumulator):
@@ -39,15 +53,17 @@ class Fidelity(Accumulator):
             raise InputError("target: robust fidelities need the local ensemble (one calibrated eigenvalue per "
                              "qubit); estimate this shadow without a calibration", argument="target")
         self.target, self.description = target, description
-        self.inverse = self.precision = None
+        self.inverse = self.precision = self.route = None
         if setup.local:
             self.target = local_route_target(target)
         if uses_network_inverse(setup.ensemble):
-            from manybody.estimation.shallow_network import shallow_inverse, sweep_precision
+            from manybody.estimation.shallow_network import fitted_route
 
-            self.inverse = shallow_inverse(setup.ensemble)
             self.target = as_mps(target)
-            self.precision = sweep_precision(self.inverse, self.target, setup.ensemble)
+            positions, bits = pilot_snapshots(setup.shadow)
+            self.route = fitted_route(setup.ensemble, self.target, setup.shadow.settings, positions, bits,
+                                      setup.shadow.n_snapshots)
+            self.inverse, self.precision = self.route.inverse, self.route.precision
             self.part_records = NETWORK_PART_RECORDS
 
     @classmethod
@@ -87,12 +103,21 @@ class Fidelity(Accumulator):
         put(data, "fidelity", (), full["fidelity"], err)
         attrs = {"target": self.description}
         if self.inverse is not None:
+            from manybody.estimation.shallow_network import BIAS_SHARE, BONDS
+
             inv = self.inverse
             attrs.update({"inverse_channel": "fitted matrix product state (approximate)",
-                          "inverse_bond": int(inv.bond), "inverse_rms_residual": float(inv.rms_residual),
+                          "inverse_bond": int(inv.bond),
+                          "inverse_bond_rule": f"the smallest of {', '.join(map(str, BONDS))} whose bias bound is "
+                                               f"at most {BIAS_SHARE:g} of the expected statistical error "
+                                               f"{self.route.expected_error:.3g} (from {self.route.pilot_snapshots} "
+                                               "pilot snapshots), else the largest",
+                          "inverse_rms_residual": float(inv.rms_residual),
                           "inverse_max_residual": float(inv.max_residual),
                           "inverse_max_residual_over": "all support patterns" if inv.exhaustive else
-                          f"{inv.checked_patterns} sampled and low-weight support patterns (an estimate)",
+                          f"{inv.checked_patterns} support patterns, all few-body and nearly full ones and "
+                          "samples of every other weight (an estimate)",
+                          "inverse_bias_bound": float(inv.bias_bound),
                           "sweep_precision": self.precision.precision,
                           "rounding_bound": float(self.precision.rounding_bound),
                           "bias_bound_in_error": float(self.approximation_bound)})
