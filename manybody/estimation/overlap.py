@@ -104,7 +104,9 @@ def _qubits(qubits, n):
     except (TypeError, ValueError):
         raise InputError(f"qubits: expected a list of qubit numbers, not {qubits!r}", argument="qubits") from None
     if not qubits or len(set(qubits)) != len(qubits) or not all(0 <= q < n for q in qubits):
-        raise InputError(f"qubits {qubits}: give distinct qubit numbers from 0 to {n - 1}", argument="qubits")
+        shown = str(qubits) if len(qubits) <= 8 else f"[{', '.join(map(str, qubits[:3]))}, ..., {qubits[-1]}] " \
+                                                      f"({len(qubits)} given)"
+        raise InputError(f"qubits {shown}: give distinct qubit numbers from 0 to {n - 1}", argument="qubits")
     return sorted(qubits)
 
 
