@@ -456,6 +456,14 @@ def _qubit_map(phi, g_keep, g_trace, hermitian: bool):
     return "dense", m.reshape(s, dr * keep.shape[1], dl * keep.shape[2])
 
 
+def _real_matmul(g, data):
+    """g @ data for a real g: a complex ``data`` (contiguous) as its real numbers, half a complex product's work."""
+    if not np.iscomplexobj(data):
+        return np.matmul(g, data)
+    *batch, rows, cols = data.shape
+    return np.matmul(g, data.view(g.dtype).reshape(*batch, rows, 2 * cols)).view(data.dtype)
+
+
 def _site_step(env, kety, bra_rows, phi, g_keep, g_trace):
     """One qubit of <psi| G(|phi><phi|) |psi> for a group of snapshots of equal bonds.
 
@@ -490,27 +498,28 @@ def _site_step(env, kety, bra_rows, phi, g_keep, g_trace):
         out = np.matmul(maps[0], x.reshape(s, d * rows, cols))  # [s, (D C C' x), (a' A)]
     elif kind == "g first":  # g on (d) into (D, keep or trace), then [keep | trace] on (part, c c' y)
         g_both = np.stack([g_keep.T, g_trace.T], axis=1).reshape(2 * dr, d)
-        xg = np.matmul(g_both, x.reshape(s, d, rows * cols)).reshape(s, dr, 2 * rows, cols)
+        xg = _real_matmul(g_both, x.reshape(s, d, rows * cols)).reshape(s, dr, 2 * rows, cols)
         out = np.matmul(np.concatenate(maps, axis=2)[:, None], xg)
     else:  # [keep; trace] on (c c' y) into (part, C C' x), then g on (d, part)
         y = np.matmul(np.concatenate(maps, axis=1)[:, None], x.reshape(s, d, rows, cols))
         g_both = np.stack([g_keep, g_trace], axis=1).reshape(2 * d, dr).T
-        out = np.matmul(g_both, y.reshape(s, 2 * d, -1))
+        out = _real_matmul(g_both, y.reshape(s, 2 * d, -1))
     out = np.matmul(bra_rows, out.reshape(-1, 2 * bra, right))  # [s D C C', A', A]
     return out.reshape(s, dr, cr, cr, right, right)
 
 
-def _qubit_factors(kets, g, dtype) -> list[tuple]:
+def _qubit_factors(kets, g, dtype, real_type) -> list[tuple]:
     """Per qubit what every snapshot's sweep uses: (kety, bra_rows, g_keep, g_trace) (see :func:`_site_step`).
 
     ``kets`` are the target's tensors as (left, physical, right), all complex or all real; ``g`` the fit's
-    tensors; ``dtype`` that of the sweep (a real or complex type of single or double precision).
+    tensors; ``dtype`` that of the sweep (a real or complex type of single or double precision) and
+    ``real_type`` its real counterpart, the type of the g factors (real: they act on real numbers).
     """
     out = []
     for ket, gq in zip(kets, g):
         out.append(tuple(np.ascontiguousarray(f, dtype=dtype) for f in (
-            ket.transpose(1, 0, 2), ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1),
-            gq[:, 1, :], 0.5 * (gq[:, 0, :] - gq[:, 1, :]))))
+            ket.transpose(1, 0, 2), ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1)))
+            + tuple(np.ascontiguousarray(f, dtype=real_type) for f in (gq[:, 1, :], 0.5 * (gq[:, 0, :] - gq[:, 1, :]))))
     return out
 
 
@@ -580,7 +589,7 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     kets = [np.asarray(a).real.astype(float).transpose(0, 2, 1) if real else
             np.asarray(a, dtype=complex).transpose(0, 2, 1) for a in tensors]
     real_type, complex_type = PRECISIONS[precision]
-    factors = _qubit_factors(kets, inverse.inverse, real_type if real else complex_type)  # shared by every chunk
+    factors = _qubit_factors(kets, inverse.inverse, real_type if real else complex_type, real_type)  # every chunk's
     setting_index = np.asarray(setting_index, dtype=np.int64)
     bits = np.asarray(bits, dtype=np.int64)
     order = np.argsort(setting_index, kind="stable")
