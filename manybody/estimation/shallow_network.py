@@ -708,8 +708,9 @@ def fitted_route(ensemble, target, settings, setting_index, bits, n_snapshots: i
     The pilot snapshots (``setting_index`` into ``settings``, ``bits``; a
     few of the estimate's own) are swept with bond PILOT_BOND in single
     precision; their standard deviation over sqrt(n_snapshots) is the
-    statistical error to expect (settings repeated by many shots make the
-    real error larger, so the choice errs towards accuracy). The bond is the
+    statistical error to expect (settings repeated by many shots, and rare
+    large values that a small pilot misses, make the real error larger, so
+    the choice errs towards accuracy). The bond is the
     first of BONDS whose bias bound is at most BIAS_SHARE of that error (the
     largest when none is); the precision follows :func:`sweep_precision`.
     Whatever is chosen, the bias and rounding bounds enter the error bar.
