@@ -82,7 +82,8 @@ TYPICAL_PHI_BOND = 4
 RIDGE = 1e-12
 
 _INVERSES: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
-_PRECISIONS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+#: per ensemble, the choices made once per estimate: sweep precisions and fitted routes
+_CHOICES: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 
 
 # ----------------------------------------------------------------- MPS helpers
@@ -517,9 +518,11 @@ def _qubit_factors(kets, g, dtype, real_type) -> list[tuple]:
     """
     out = []
     for ket, gq in zip(kets, g):
-        out.append(tuple(np.ascontiguousarray(f, dtype=dtype) for f in (
-            ket.transpose(1, 0, 2), ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1)))
-            + tuple(np.ascontiguousarray(f, dtype=real_type) for f in (gq[:, 1, :], 0.5 * (gq[:, 0, :] - gq[:, 1, :]))))
+        kety = np.ascontiguousarray(ket.transpose(1, 0, 2), dtype=dtype)
+        bra_rows = np.ascontiguousarray(ket.conj().transpose(2, 1, 0).reshape(ket.shape[2], -1), dtype=dtype)
+        g_keep = np.ascontiguousarray(gq[:, 1, :], dtype=real_type)
+        g_trace = np.ascontiguousarray(0.5 * (gq[:, 0, :] - gq[:, 1, :]), dtype=real_type)
+        out.append((kety, bra_rows, g_keep, g_trace))
     return out
 
 
@@ -576,7 +579,7 @@ def shallow_fidelity_mps(inverse: ShallowInverse, target, ensemble, settings, se
     manybody.threads) with BLAS on one thread; each chunk is computed alone,
     so the values do not depend on the number of threads. ``precision``
     "single" sweeps in single-precision numbers: twice as fast, with a
-    rounding error that :func:`single_precision_rounding` measures.
+    rounding error that :func:`sweep_precision` measures.
     """
     if precision not in PRECISIONS:
         raise InputError(f"precision {precision!r}: choose one of {', '.join(PRECISIONS)}")
@@ -655,7 +658,7 @@ def sweep_precision(inverse: ShallowInverse, target, ensemble, snapshots: int = 
     """
     tensors = target if isinstance(target, (list, tuple)) else mps_site_tensors(target)
     key = (id(inverse), _digest(tensors), snapshots, seed)
-    cache = _PRECISIONS.setdefault(ensemble, {})
+    cache = _CHOICES.setdefault(ensemble, {})
     if key in cache and cache[key][0] is inverse:  # computed once per estimate, not once per part
         return cache[key][1]
     rng = np.random.default_rng(seed)
@@ -721,7 +724,7 @@ def fitted_route(ensemble, target, settings, setting_index, bits, n_snapshots: i
     setting_index = np.asarray(setting_index, dtype=np.int64)
     bits = np.asarray(bits)
     key = ("route", _digest(tensors), _digest([setting_index, bits]), int(n_snapshots))
-    cache = _PRECISIONS.setdefault(ensemble, {})
+    cache = _CHOICES.setdefault(ensemble, {})
     if key in cache:
         return cache[key]
     distinct, where = np.unique(setting_index, return_inverse=True)

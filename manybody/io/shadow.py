@@ -96,14 +96,36 @@ class Shadow:
             total += int(counts.sum()) if exact else int(counts.astype(object).sum())
         return total
 
-    def _read(self, array, start: int, size: int, name: str) -> np.ndarray:
-        """array[start:start + size] as numpy; a damaged file (a chunk that fails to inflate) is an InputError."""
+    def _read(self, array, start: int, size: int, name: str, index=None) -> np.ndarray:
+        """array[start:start + size] (or array[index], records start to start + size - 1) as numpy.
+
+        A damaged file (a chunk that fails to inflate) is an InputError.
+        """
         try:
-            return np.asarray(array[start:start + size])
+            return np.asarray(array[start:start + size] if index is None else array[index])
         except (OSError, RuntimeError, ValueError) as exc:
             reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
             raise InputError(f"{self.origin or 'the shadow'}: variable {name} cannot be read at records {start} to "
                              f"{min(start + size, self.n_records) - 1}; the file is damaged ({reason})") from None
+
+    def pick(self, records) -> tuple[np.ndarray, np.ndarray]:
+        """(setting positions in ``settings``, outcome bits) of the given records (increasing), one read each.
+
+        For a few records spread over a large file, where reading them chunk by chunk would read it all.
+        """
+        records = np.asarray(records, dtype=np.int64)
+        if not len(records):
+            return np.zeros(0, dtype=np.int64), np.zeros((0, self.n_qubits), dtype=np.uint8)
+        first, size = int(records[0]), int(records[-1] - records[0] + 1)
+        ids = self._read(self.record_setting, first, size, "record_setting", records)
+        try:
+            positions = check.RecordCheck(self.settings.ids, self.origin).positions(ids, 0)
+        except InputError:  # read the records one by one, so that the message names the right one
+            for r in records:
+                next(self._checked(1, False, int(r), int(r) + 1))
+            raise
+        bits = self._read(self.outcomes, first, size, "outcome", records).astype(np.uint8, copy=False)
+        return positions, unpack_outcomes(bits, self.n_qubits) if self.packed else bits
 
     def _checked(self, size: int, outcomes: bool = True, start: int = 0, stop: int | None = None):
         """(setting ids, positions in ``settings``, outcomes or None, counts) per chunk, ids and counts checked.

@@ -96,6 +96,22 @@ def test_record_naming_an_absent_setting(tmp_path, ids):
     path = damaged(tmp_path, make(LocalEnsemble(3), ids=ids), set_value("record_setting", 9, 99))
     read_shadow(path)  # the records are checked as they are read
     one_sentence(path, "variable record_setting names setting 99 at record 9, which is not in variable setting_id")
+    # a few records picked from the file (the fidelity's pilot) are checked too, and the message names the record
+    one_sentence(path, "names setting 99 at record 9, which", lambda p: read_shadow(p).pick([0, 9, 20]))
+
+
+def test_picked_records_are_the_records_read_in_chunks(tmp_path):
+    # our own reader against itself: packed outcomes of a shallow shadow, on disk and in memory
+    shadow = make(ShallowEnsemble(10, 2, chain(10)), records=50, ids=[10, 20, 30, 40])
+    write_shadow(shadow, tmp_path / "s.nc")
+    picked = [0, 7, 8, 31, 49]
+    for source in (read_shadow(tmp_path / "s.nc"), shadow):
+        positions, bits = source.pick(picked)
+        every = [(p, b) for p, b, _ in source.chunks(7)]
+        all_positions, all_bits = np.concatenate([p for p, _ in every]), np.concatenate([b for _, b in every])
+        np.testing.assert_array_equal(positions, all_positions[picked])
+        np.testing.assert_array_equal(bits, all_bits[picked])
+    assert source.pick([])[1].shape == (0, 10)
 
 
 @pytest.mark.parametrize("ens,change,needle", [

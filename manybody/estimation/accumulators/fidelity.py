@@ -22,6 +22,9 @@ attributes of ``fidelity``.
 
 from __future__ import annotations
 
+import os
+import weakref
+
 import numpy as np
 
 from manybody.errors import InputError
@@ -35,13 +38,29 @@ NETWORK_PART_RECORDS = 256
 PILOT_SNAPSHOTS = 64
 
 
-def pilot_snapshots(shadow, count: int = PILOT_SNAPSHOTS) -> tuple[np.ndarray, np.ndarray]:
-    """``count`` records spread evenly over the shadow: (setting positions, outcome bits), one snapshot each."""
-    starts = np.unique(np.linspace(0, max(shadow.n_records - 1, 0), count).astype(np.int64))
-    parts = [next(shadow.chunks(1, int(start), int(start) + 1)) for start in starts] if shadow.n_records else []
-    if not parts:
-        return np.zeros(0, dtype=np.int64), np.zeros((0, shadow.n_qubits), dtype=np.uint8)
-    return np.concatenate([p for p, _, _ in parts]), np.concatenate([b for _, b, _ in parts])
+_PILOTS: dict = {}
+
+
+def pilot(shadow, count: int = PILOT_SNAPSHOTS) -> tuple[np.ndarray, np.ndarray, int]:
+    """``count`` records spread evenly over the shadow (setting positions, outcome bits) and its snapshot count.
+
+    Read once per shadow and kept: every part of an estimate builds its own
+    accumulator, and a shadow file that a worker reopens is the same file
+    (keyed by path, modification time and records).
+    """
+    if shadow.origin and os.path.exists(shadow.origin):
+        key = (shadow.origin, os.path.getmtime(shadow.origin), shadow.n_records)
+    else:
+        key = (id(shadow), shadow.n_records)
+    hit = _PILOTS.get(key)
+    if hit is not None and (hit[0] is None or hit[0]() is shadow):
+        return hit[1:]
+    records = np.unique(np.linspace(0, shadow.n_records - 1, count).astype(np.int64)) if shadow.n_records else []
+    positions, bits = shadow.pick(records)
+    if len(_PILOTS) >= 16:  # a notebook may estimate many shadows: keep the last few
+        _PILOTS.clear()
+    _PILOTS[key] = (None if shadow.origin else weakref.ref(shadow), positions, bits, shadow.n_snapshots)
+    return positions, bits, shadow.n_snapshots
 
 
 class Fidelity(Accumulator):
@@ -60,9 +79,9 @@ class Fidelity(Accumulator):
             from manybody.estimation.shallow_network import fitted_route
 
             self.target = as_mps(target)
-            positions, bits = pilot_snapshots(setup.shadow)
+            positions, bits, n_snapshots = pilot(setup.shadow)
             self.route = fitted_route(setup.ensemble, self.target, setup.shadow.settings, positions, bits,
-                                      setup.shadow.n_snapshots)
+                                      n_snapshots)
             self.inverse, self.precision = self.route.inverse, self.route.precision
             self.part_records = NETWORK_PART_RECORDS
 
