@@ -248,7 +248,14 @@ def target_state(target, model, n_qubits: int):
         if model is None:
             raise InputError(f"target {target!r}: a model is needed to prepare it (give model=)", argument="target")
         backend = "dense" if n_qubits <= MAX_EXACT_QUBITS else "mps"
-        state, description = initial_state(model, target, backend)[0], target
+        try:
+            state, description = initial_state(model, target, backend)[0], target
+        except InputError as exc:
+            if exc.argument != "state":
+                raise
+            raise InputError(f"target {target!r}: no such file, and not a state name: expected a state file, "
+                             "'ground', a name (neel, zero, one, plus, minus), one letter per qubit from 0, 1, +, -, "
+                             "or STATE@SPEC.toml", argument="target") from None
     else:
         state, description = target, "given state"
     size = getattr(state, "L", None) or int(np.log2(max(np.size(state), 1)))
