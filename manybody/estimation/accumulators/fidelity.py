@@ -39,6 +39,25 @@ PILOT_SNAPSHOTS = 64
 
 
 _PILOTS: dict = {}
+_TARGETS: dict = {}
+
+
+def network_target(target):
+    """The target as an MPS, converted once per target object (a 20-qubit vector takes about a second).
+
+    Every part of an estimate builds its own accumulator from the same options, so the same object comes back.
+    """
+    hit = _TARGETS.get(id(target))
+    if hit is not None and hit[0]() is target:
+        return hit[1]
+    mps = as_mps(target)
+    if len(_TARGETS) >= 4:
+        _TARGETS.clear()
+    try:
+        _TARGETS[id(target)] = (weakref.ref(target), mps)
+    except TypeError:  # an object without weak references: convert it every time
+        pass
+    return mps
 
 
 def pilot(shadow, count: int = PILOT_SNAPSHOTS) -> tuple[np.ndarray, np.ndarray, int]:
@@ -78,7 +97,7 @@ class Fidelity(Accumulator):
         if uses_network_inverse(setup.ensemble):
             from manybody.estimation.shallow_network import fitted_route
 
-            self.target = as_mps(target)
+            self.target = network_target(target)
             positions, bits, n_snapshots = pilot(setup.shadow)
             self.route = fitted_route(setup.ensemble, self.target, setup.shadow.settings, positions, bits,
                                       n_snapshots)
