@@ -352,11 +352,6 @@ def plan(model, error: float, depths=(0, 1, 2, 3), shots: int | None = 1, subsys
 
         extra["observables"] = [(name, op) for name, op, _ in observables_from(observables, model.n_qubits)]
     if target is not None:
-        from manybody.references.exact import MAX_EXACT_QUBITS
-
-        if model.n_qubits > MAX_EXACT_QUBITS:
-            raise InputError(f"target: planning the fidelity needs a dense target, at most {MAX_EXACT_QUBITS} qubits",
-                             argument="target")
         extra["target"] = target_state(target, model, model.n_qubits)[0]
     return _plan(model, float(error), depths, int(distance), subsystems_of(subsystems, model.n_sites), expectation,
                  None if shots is None else max(1, int(shots)), **costs, **extra)

@@ -350,15 +350,17 @@ def fidelity_variance(target, ens, samples: int = FIDELITY_SAMPLES, seed: int = 
     need the ensemble's third moment. Shallow circuits beyond the exact size
     sample the target as an MPS and take at most NETWORK_FIDELITY_SAMPLES
     snapshots through the fitted inverse (relative error of the variance about
-    sqrt(2 / samples)).
+    sqrt(2 / samples)); an MPS target (beyond the exact size) is sampled as an
+    MPS for the local ensemble too.
     """
-    from manybody.estimation.fidelity import as_mps, dense_target, fidelity_snapshots, uses_network_inverse
+    from manybody.estimation.fidelity import as_mps, dense_target, fidelity_snapshots, is_mps, uses_network_inverse
     from manybody.simulation.sampling import sample_dense, sample_mps
 
     rng = np.random.default_rng(seed)
-    if uses_network_inverse(ens):
+    network = uses_network_inverse(ens)
+    if network or is_mps(target):
         state = as_mps(target)
-        settings = ens.draw(min(samples, NETWORK_FIDELITY_SAMPLES), rng)
+        settings = ens.draw(min(samples, NETWORK_FIDELITY_SAMPLES) if network else samples, rng)
         bits, _ = sample_mps(state, ens, settings, 1, rng)
     else:
         state = dense_target(target)
@@ -367,7 +369,7 @@ def fidelity_variance(target, ens, samples: int = FIDELITY_SAMPLES, seed: int = 
     # single precision for the fitted route: its rounding (~1e-6 of the values) is nothing beside the
     # Monte Carlo error of a variance from at most a few thousand snapshots
     values = fidelity_snapshots(state, ens, settings, np.arange(len(settings)), bits,
-                                precision="single" if uses_network_inverse(ens) else "double")
+                                precision="single" if network else "double")
     return float(np.var(values, ddof=1))
 
 
