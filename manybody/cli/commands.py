@@ -230,6 +230,8 @@ def cmd_reference(args) -> int:
 
 
 def cmd_plan(args) -> int:
+    import warnings
+
     from manybody.io.results import write_dataset
     from manybody.planning.budget import format_plan
 
@@ -239,9 +241,12 @@ def cmd_plan(args) -> int:
         raise InputError(f"--depths {args.depths!r}: expected whole numbers separated by commas") from None
     refuse_overwrite(args.output, [args.spec, args.pilot])
     refuse_overwrite(args.figure, [args.spec, args.pilot])
-    ds = mb.plan(args.spec, args.error, depths, args.shots, args.subsystems, args.pilot, args.distance,
-                 setting_time=args.setting_time, shot_time=args.shot_time, observables=args.observable,
-                 target=args.target)
+    with warnings.catch_warnings():  # shown at once, one line each
+        warnings.simplefilter("always", RuntimeWarning)
+        warnings.showwarning = lambda message, *_, **__: print(f"warning: {message}", file=sys.stderr)
+        ds = mb.plan(args.spec, args.error, depths, args.shots, args.subsystems, args.pilot, args.distance,
+                     setting_time=args.setting_time, shot_time=args.shot_time, observables=args.observable,
+                     target=args.target)
     print(format_plan(ds))
     if args.figure:
         from manybody.io.files import atomic_path

@@ -6,7 +6,7 @@ import quimb.tensor as qtn
 
 import manybody as mb
 from manybody.measure.ensembles import LocalEnsemble
-from manybody.planning.budget import fidelity_variance
+from manybody.planning.budget import fidelity_variance, format_plan
 from manybody.reporting.plan import plan_figure
 
 SPEC = '[lattice]\nkind = "chain"\nsize = [10]\n[model]\nkind = "tfim"\n'
@@ -47,8 +47,23 @@ def test_fidelity_planned_beyond_the_dense_size():
     # (2024)). Our own remark: the depth-0 Monte Carlo underestimates 1.5^24 - 1 (heavy tails), which only
     # narrows the gap
     model = mb.parse_model(SPEC.replace("[10]", "[24]"))
-    ds = mb.plan(model, 0.05, depths=(0, 2), target="zero")
+    eps = 0.05
+    with pytest.warns(RuntimeWarning, match="fidelity at depth 0: .* lower estimate"):
+        ds = mb.plan(model, eps, depths=(0, 2), target="zero")
     assert float(ds.fidelity.sel(depth=2)) < float(ds.fidelity.sel(depth=0)) / 10
+    # the flag has teeth: the sampled depth-0 variance is far below the exact 1.5^24 - 1 (derived above)
+    assert 0 in ds.fidelity.attrs["lower_estimate_at_depths"]
+    assert float(ds.fidelity.sel(depth=0)) * eps**2 < (1.5**24 - 1) / 10
+    assert ">=" in format_plan(ds).splitlines()[2] and "a lower estimate" in format_plan(ds)
+
+
+def test_a_well_sampled_fidelity_variance_is_not_flagged():
+    # 4 qubits, |0000> on itself at depth 0: Var = 1.5^4 - 1 (derived above) is sampled well, so no flag
+    model = mb.parse_model(SPEC.replace("[10]", "[4]"))
+    ds = mb.plan(model, 0.05, depths=(0,), target="zero")
+    assert list(ds.fidelity.attrs["lower_estimate_at_depths"]) == []
+    spread = np.sqrt((5.375**4 - 1.5**8) / 2000)  # standard deviation of the sampled mean of f^2 (above)
+    assert abs(float(ds.fidelity.sel(depth=0)) * 0.05**2 - (1.5**4 - 1)) < 4 * spread + 0.05**2  # + rounding up
 
 
 def test_fidelity_and_target_through_the_api():
