@@ -402,6 +402,12 @@ def fidelity_variance(target, ens, samples: int = FIDELITY_SAMPLES, seed: int = 
                       float(squares.max() / squares.sum()))
 
 
+def _lower_depths(ds: xr.Dataset) -> np.ndarray:
+    """Depths whose fidelity count is a lower estimate (a one-element list reads back from netCDF as a number)."""
+    return np.atleast_1d(ds["fidelity"].attrs.get("lower_estimate_at_depths", [])) if "fidelity" in ds else \
+        np.zeros(0, dtype=np.int64)
+
+
 def format_plan(ds: xr.Dataset) -> str:
     cols = [("depth", "depth"), ("energy", "energy"), ("energy_density", "energy/site"),
             ("correlation", f"corr (r<={ds.attrs['distance']})"), ("purity", "purity")]
@@ -411,7 +417,7 @@ def format_plan(ds: xr.Dataset) -> str:
              "  ".join(f"{title:>14}" for _, title in cols)]
     for i, d in enumerate(ds.depth.values):
         cells = [f"{d:>14d}"]
-        lower = "fidelity" in ds and d in ds["fidelity"].attrs.get("lower_estimate_at_depths", ())
+        lower = d in _lower_depths(ds)
         for name, _ in cols[1:]:
             v = float(ds[name].values[i])
             cells.append(f"{'refused':>14}" if not np.isfinite(v) else
@@ -423,6 +429,6 @@ def format_plan(ds: xr.Dataset) -> str:
     lines.append((f"{shots} shot(s) per setting" if shots else "shots per setting: the cheapest choice per depth")
                  + f"; costs {ds.attrs['setting_time']:g} s per setting, {ds.attrs['shot_time']:g} s per shot; "
                  "purity columns are 0 when no subsystems are given; 'refused': estimate does not take it")
-    if "fidelity" in ds and len(ds["fidelity"].attrs.get("lower_estimate_at_depths", ())):
+    if len(_lower_depths(ds)):
         lines.append("'>=': the fidelity's sampled variance rests on a few large values there, a lower estimate")
     return "\n".join(lines)

@@ -3,6 +3,7 @@
 import numpy as np
 import pytest
 import quimb.tensor as qtn
+import xarray as xr
 
 import manybody as mb
 from manybody.measure.ensembles import LocalEnsemble
@@ -41,7 +42,7 @@ def test_fidelity_variance_of_local_shadows_of_a_product_state():
         assert abs(variance - exact) < 4 * spread
 
 
-def test_fidelity_planned_beyond_the_dense_size():
+def test_fidelity_planned_beyond_the_dense_size(tmp_path):
     # 24 qubits: the target is an MPS, sampled as one at depth 0 and through the fitted inverse at depth 2;
     # the fidelity needs far fewer snapshots at depth 2 (the depth trade-off, Bertoni et al., PRL 133, 020602
     # (2024)). Our own remark: the depth-0 Monte Carlo underestimates 1.5^24 - 1 (heavy tails), which only
@@ -55,6 +56,12 @@ def test_fidelity_planned_beyond_the_dense_size():
     assert 0 in ds.fidelity.attrs["lower_estimate_at_depths"]
     assert float(ds.fidelity.sel(depth=0)) * eps**2 < (1.5**24 - 1) / 10
     assert ">=" in format_plan(ds).splitlines()[2] and "a lower estimate" in format_plan(ds)
+    # our own files: the mark survives a round trip through netCDF (a one-element list reads back as a number)
+    from manybody.io.results import write_dataset
+
+    write_dataset(ds.isel(depth=[0]), tmp_path / "plan.nc")
+    back = xr.load_dataset(tmp_path / "plan.nc", engine="h5netcdf")
+    assert ">=" in format_plan(back).splitlines()[2]
 
 
 def test_a_well_sampled_fidelity_variance_is_not_flagged():
