@@ -243,7 +243,7 @@ def target_state(target, model, n_qubits: int):
         state, description = read_state(target), f"state file {os.fspath(target)}"
     elif isinstance(target, str):
         from manybody.references.exact import MAX_EXACT_QUBITS
-        from manybody.simulation.experiment import initial_state
+        from manybody.simulation.experiment import NAMED_STATES, initial_state
 
         if model is None:
             raise InputError(f"target {target!r}: a model is needed to prepare it (give model=)", argument="target")
@@ -254,8 +254,8 @@ def target_state(target, model, n_qubits: int):
             if exc.argument != "state":
                 raise
             raise InputError(f"target {target!r}: no such file, and not a state name: expected a state file, "
-                             "'ground', a name (neel, zero, one, plus, minus), one letter per qubit from 0, 1, +, -, "
-                             "or STATE@SPEC.toml", argument="target") from None
+                             f"'ground', a name ({', '.join(NAMED_STATES[1:])}), one letter per qubit from 0, 1, +, "
+                             "-, or STATE@SPEC.toml", argument="target") from None
     else:
         state, description = target, "given state"
     size = getattr(state, "L", None) or int(np.log2(max(np.size(state), 1)))

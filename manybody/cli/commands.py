@@ -6,8 +6,10 @@ arguments, raise :class:`InputError` for bad input and return an exit status.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import sys
+import warnings
 
 import manybody as mb
 from manybody.errors import InputError
@@ -133,9 +135,16 @@ def cmd_simulate(args) -> int:
     return 0
 
 
-def cmd_estimate(args) -> int:
-    import warnings
+@contextlib.contextmanager
+def warnings_as_lines(prefix: str = ""):
+    """RuntimeWarnings inside are printed at once to stderr, one line each: 'warning: PREFIX message'."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("always", RuntimeWarning)
+        warnings.showwarning = lambda message, *_, **__: print(f"warning: {prefix}{message}", file=sys.stderr)
+        yield
 
+
+def cmd_estimate(args) -> int:
     from manybody.io.results import combine_series, write_dataset
 
     target_file = args.target if args.target and os.path.isfile(args.target) else None
@@ -158,9 +167,7 @@ def cmd_estimate(args) -> int:
         calibration = Calibration(cal)
     results = []
     for path, shadow in zip(args.shadows, shadows):
-        with warnings.catch_warnings():  # warnings are shown at once (some announce a long pass), with the file
-            warnings.simplefilter("always", RuntimeWarning)
-            warnings.showwarning = lambda message, *_, **__: print(f"warning: {path}: {message}", file=sys.stderr)
+        with warnings_as_lines(f"{path}: "):  # some announce a long pass
             try:
                 ds = mb.estimate(shadow, model=args.model, subsystems=args.subsystems, calibration=calibration,
                                  target=args.target, bipartitions=args.bipartitions, scheduler=args.scheduler,
@@ -230,8 +237,6 @@ def cmd_reference(args) -> int:
 
 
 def cmd_plan(args) -> int:
-    import warnings
-
     from manybody.io.results import write_dataset
     from manybody.planning.budget import format_plan
 
@@ -241,9 +246,7 @@ def cmd_plan(args) -> int:
         raise InputError(f"--depths {args.depths!r}: expected whole numbers separated by commas") from None
     refuse_overwrite(args.output, [args.spec, args.pilot])
     refuse_overwrite(args.figure, [args.spec, args.pilot])
-    with warnings.catch_warnings():  # shown at once, one line each
-        warnings.simplefilter("always", RuntimeWarning)
-        warnings.showwarning = lambda message, *_, **__: print(f"warning: {message}", file=sys.stderr)
+    with warnings_as_lines():
         ds = mb.plan(args.spec, args.error, depths, args.shots, args.subsystems, args.pilot, args.distance,
                      setting_time=args.setting_time, shot_time=args.shot_time, observables=args.observable,
                      target=args.target)

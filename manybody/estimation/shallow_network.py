@@ -727,11 +727,9 @@ def fitted_route(ensemble, target, settings, setting_index, bits, n_snapshots: i
     cache = _CHOICES.setdefault(ensemble, {})
     if key in cache:
         return cache[key]
-    distinct, where = np.unique(setting_index, return_inverse=True)
-    pilot = shallow_fidelity_mps(shallow_inverse(ensemble, bond=PILOT_BOND), tensors, ensemble,
-                                 settings.take(distinct), where, bits, precision="single")
+    pilot = shallow_fidelity_mps(shallow_inverse(ensemble, bond=PILOT_BOND), tensors, ensemble, settings,
+                                 setting_index, bits, precision="single")
     expected = float(np.std(pilot, ddof=1) / np.sqrt(max(n_snapshots, 1))) if len(pilot) > 1 else 0.0
-    inverse = None
     for bond in BONDS:
         inverse = shallow_inverse(ensemble, bond=bond)
         if inverse.bias_bound <= BIAS_SHARE * expected:

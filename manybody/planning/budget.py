@@ -346,7 +346,9 @@ def _more_targets(ens, observables, target, expectation, eps):
             calls.append(lambda k, a=snap, b=between: setting_variance(a, b, k) / eps**2)
         out["observable"] = calls
     if target is not None:
-        variance, (spread, share) = fidelity_variance(target, ens, spread=True)
+        values = fidelity_samples(target, ens)
+        variance = float(np.var(values, ddof=1))
+        spread, share = variance_spread(values)
         if spread > SPREAD_NOTICE or share > SHARE_NOTICE:
             import warnings
 
@@ -358,21 +360,23 @@ def _more_targets(ens, observables, target, expectation, eps):
     return out
 
 
-def fidelity_variance(target, ens, samples: int = FIDELITY_SAMPLES, seed: int = 7, spread: bool = False):
+def fidelity_variance(target, ens, samples: int = FIDELITY_SAMPLES, seed: int = 7) -> float:
     """Per-snapshot variance of the fidelity estimator when the measured state is the target itself.
 
-    Monte Carlo over ``samples`` snapshots drawn by exact Born sampling of the
-    target (fixed seed, so the plan is reproducible); the exact variance would
-    need the ensemble's third moment. Shallow circuits beyond the exact size
+    The sample variance of :func:`fidelity_samples`; :func:`variance_spread` says how far to trust it.
+    """
+    return float(np.var(fidelity_samples(target, ens, samples, seed), ddof=1))
+
+
+def fidelity_samples(target, ens, samples: int = FIDELITY_SAMPLES, seed: int = 7) -> np.ndarray:
+    """Fidelity estimates of ``samples`` snapshots of the target itself, by exact Born sampling.
+
+    A fixed seed, so the plan is reproducible; the exact variance would need
+    the ensemble's third moment. Shallow circuits beyond the exact size
     sample the target as an MPS and take at most NETWORK_FIDELITY_SAMPLES
     snapshots through the fitted inverse (relative error of the variance about
     sqrt(2 / samples)); an MPS target (beyond the exact size) is sampled as an
-    MPS for the local ensemble too. With ``spread``, also (the relative
-    standard error of the sampled variance, sqrt((m4 / var^2 - 1) / samples)
-    with m4 the sample's fourth central moment; the share of the largest
-    squared deviation in their sum): heavy-tailed values (local shadows of
-    many qubits) make both large, and the variance then comes out low (for
-    |0...0> at 40 qubits, depth 0: 6.8 against the exact 1.5^40 - 1).
+    MPS for the local ensemble too.
     """
     from manybody.estimation.fidelity import as_mps, dense_target, fidelity_snapshots, is_mps, uses_network_inverse
     from manybody.simulation.sampling import sample_dense, sample_mps
@@ -389,17 +393,26 @@ def fidelity_variance(target, ens, samples: int = FIDELITY_SAMPLES, seed: int = 
         bits = sample_dense(state, ens, settings, 1, rng)
     # single precision for the fitted route: its rounding (~1e-6 of the values) is nothing beside the
     # Monte Carlo error of a variance from at most a few thousand snapshots
-    values = fidelity_snapshots(state, ens, settings, np.arange(len(settings)), bits,
-                                precision="single" if network else "double")
-    variance = float(np.var(values, ddof=1))
-    if not spread:
-        return variance
+    return fidelity_snapshots(state, ens, settings, np.arange(len(settings)), bits,
+                              precision="single" if network else "double")
+
+
+def variance_spread(values) -> tuple[float, float]:
+    """How far a sample variance can be trusted: (its relative standard error, its largest term's share).
+
+    The relative standard error is sqrt((m4 / var^2 - 1) / N), m4 the fourth
+    central moment; the share is the largest squared deviation over their
+    sum. Heavy-tailed values (local shadows of many qubits) make both large,
+    and the variance then comes out low (for |0...0> at 40 qubits, depth 0:
+    6.8 against the exact 1.5^40 - 1). Zero for values without spread.
+    """
+    values = np.asarray(values, dtype=float)
     squares = (values - values.mean()) ** 2
+    variance = float(np.var(values, ddof=1)) if len(values) > 1 else 0.0
     if not variance > 0:
-        return variance, (0.0, 0.0)
+        return 0.0, 0.0
     m4 = float(np.mean(squares**2))
-    return variance, (float(np.sqrt(max(m4 / variance**2 - 1.0, 0.0) / len(values))),
-                      float(squares.max() / squares.sum()))
+    return float(np.sqrt(max(m4 / variance**2 - 1.0, 0.0) / len(values))), float(squares.max() / squares.sum())
 
 
 def _lower_depths(ds: xr.Dataset) -> np.ndarray:

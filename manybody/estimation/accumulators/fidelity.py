@@ -42,44 +42,43 @@ _PILOTS: dict = {}
 _TARGETS: dict = {}
 
 
-def network_target(target):
-    """The target as an MPS, converted once per target object (a 20-qubit vector takes about a second).
+def _kept(cache: dict, key, owner, compute, limit: int):
+    """compute(), once per ``key``; with an ``owner`` the entry counts only while that very object lives (ids recur).
 
-    Every part of an estimate builds its own accumulator from the same options, so the same object comes back.
+    Every part of an estimate builds its own accumulator from the same options and shadow, so what they share is
+    computed once. At most ``limit`` entries (a notebook may estimate many shadows: the last few are kept).
     """
-    hit = _TARGETS.get(id(target))
-    if hit is not None and hit[0]() is target:
+    hit = cache.get(key)
+    if hit is not None and (hit[0] is None or hit[0]() is owner):
         return hit[1]
-    mps = as_mps(target)
-    if len(_TARGETS) >= 4:
-        _TARGETS.clear()
+    value = compute()
+    if len(cache) >= limit:
+        cache.clear()
     try:
-        _TARGETS[id(target)] = (weakref.ref(target), mps)
-    except TypeError:  # an object without weak references: convert it every time
+        cache[key] = (None if owner is None else weakref.ref(owner), value)
+    except TypeError:  # an object without weak references: computed each time
         pass
-    return mps
+    return value
+
+
+def network_target(target):
+    """The target as an MPS, converted once per target object (a 20-qubit vector takes about a second)."""
+    return _kept(_TARGETS, id(target), target, lambda: as_mps(target), 4)
 
 
 def pilot(shadow, count: int = PILOT_SNAPSHOTS) -> tuple[np.ndarray, np.ndarray, int]:
     """``count`` records spread evenly over the shadow (setting positions, outcome bits) and its snapshot count.
 
-    Read once per shadow and kept: every part of an estimate builds its own
-    accumulator, and a shadow file that a worker reopens is the same file
-    (keyed by path, modification time and records).
+    Read once per shadow: a shadow file that a worker reopens is the same file (keyed by path, modification
+    time and records), an object in memory is itself.
     """
+    def read():
+        records = np.unique(np.linspace(0, shadow.n_records - 1, count).astype(np.int64)) if shadow.n_records else []
+        return (*shadow.pick(records), shadow.n_snapshots)
+
     if shadow.origin and os.path.exists(shadow.origin):
-        key = (shadow.origin, os.path.getmtime(shadow.origin), shadow.n_records)
-    else:
-        key = (id(shadow), shadow.n_records)
-    hit = _PILOTS.get(key)
-    if hit is not None and (hit[0] is None or hit[0]() is shadow):
-        return hit[1:]
-    records = np.unique(np.linspace(0, shadow.n_records - 1, count).astype(np.int64)) if shadow.n_records else []
-    positions, bits = shadow.pick(records)
-    if len(_PILOTS) >= 16:  # a notebook may estimate many shadows: keep the last few
-        _PILOTS.clear()
-    _PILOTS[key] = (None if shadow.origin else weakref.ref(shadow), positions, bits, shadow.n_snapshots)
-    return positions, bits, shadow.n_snapshots
+        return _kept(_PILOTS, (shadow.origin, os.path.getmtime(shadow.origin), shadow.n_records), None, read, 16)
+    return _kept(_PILOTS, (id(shadow), shadow.n_records), shadow, read, 16)
 
 
 class Fidelity(Accumulator):
