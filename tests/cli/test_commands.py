@@ -150,7 +150,7 @@ def test_estimate_and_reference_through_the_command_line(tmp_path):
     (["--subsystems", "1,1"], "a site is repeated"),
     (["--subsystems", "a-b"], "expected an inclusive range"),
     (["--model", "SMALL"], "the model has 4 qubits but the shadow has 12"),
-    (["--target", "no_such_state.nc"], "--target 'no_such_state.nc': no such file, and not a state name"),
+    (["--target", "no_such_state.nc"], "--target 'no_such_state.nc': no such file, and not a state name"),  # ours
 ])
 def test_estimate_bad_input(tmp_path, extra, needle):
     shadow = tmp_path / "gs.nc"

@@ -126,7 +126,7 @@ def test_bad_input():
     with pytest.raises(InputError, match=r"^qubits \[0, 7\]: give distinct qubit numbers from 0 to 3$"):
         overlap(a, make_shadow(psi, LocalEnsemble(N), 100, seed=2), qubits=[0, 7])
     long_list = r"^qubits \[0, 1, 2, \.\.\., 99\] \(100 given\): give distinct qubit numbers from 0 to 3$"
-    with pytest.raises(InputError, match=long_list):  # a long list, abridged
+    with pytest.raises(InputError, match=long_list):  # our own wording: a long list, abridged
         overlap(a, make_shadow(psi, LocalEnsemble(N), 100, seed=2), qubits=range(100))
     with pytest.raises(InputError, match="5 qubits"):
         overlap(a, make_shadow(ground(5), LocalEnsemble(5), 100, seed=2))

@@ -65,7 +65,7 @@ def test_fit_residual_reported_exactly_and_shrinks_with_bond():
         assert inv.rms_residual == pytest.approx(np.sqrt(np.mean(r**2)), rel=1e-6)
         rms.append(inv.rms_residual)
     assert rms[1] < 0.1 * rms[0]
-    # the default weight 0.3 per bit: the mean with weights 0.7^(n - |s|) 0.3^|s|
+    # the default weight 0.3 per bit: against the definition, the mean with weights 0.7^(n - |s|) 0.3^|s|
     inv = sn.shallow_inverse(ens, bond=4)
     r = lam * sn.mps_values(inv.inverse, patterns) - 1.0
     w = 0.3 ** patterns.sum(axis=1) * 0.7 ** (n - patterns.sum(axis=1))
@@ -163,7 +163,7 @@ def test_inputs_are_checked():
 
 # ------------------------------------------------------- (c) beyond dense sizes
 def mps_snapshots(state, n, depth, n_settings, shots, seed):
-    """A depth-``depth`` chain ensemble, its drawn settings, and shots of an MPS ``state``: (ens, settings, idx, bits)."""
+    """A depth-``depth`` chain ensemble, its settings and shots of an MPS ``state``: (ens, settings, idx, bits)."""
     rng = np.random.default_rng(seed)
     ens = ShallowEnsemble(n, depth, chain(n))
     settings = ens.draw(n_settings, rng)
@@ -261,7 +261,9 @@ def test_real_target_on_real_planes_equals_the_complex_route():
 
 def test_single_precision_sweep_within_its_rounding_bound_of_the_exact_values():
     # the single-precision sweep against the exact dense Walsh-Hadamard route (docs/design.md section
-    # 4.5) on snapshots other than those sweep_precision compared: within the fit's bound plus the
+    # 4.5; itself checked against the Pauli-diagonal inverse channel of Huang, Kueng, Preskill, Nat. Phys.
+    # 16, 1050 (2020) in the brute-force test above) on snapshots other than those sweep_precision
+    # compared: within the fit's bound plus the
     # rounding bound; a coarse fit (bond 4 at 12 qubits, depth 3) takes single precision
     n = 12
     psi = random_state(n, 11)
@@ -324,8 +326,9 @@ def pauli_expectations(psi):
 
 
 def test_exact_bias_of_a_coarse_fit_within_the_weight_bound():
-    # E[f] - F = 2^-n sum_P r(supp P) tr(P rho) tr(P psi) (the channel's Pauli-diagonal definition, docs/
-    # design.md section 4.5), summed over all 4^n Paulis for pure rho and psi: within the weight-aware
+    # E[f] - F = 2^-n sum_P r(supp P) tr(P rho) tr(P psi) (the inverse channel is diagonal in the Pauli
+    # basis, Huang, Kueng, Preskill, Nat. Phys. 16, 1050 (2020); docs/design.md section 4.5), summed over
+    # all 4^n Paulis (scipy's Hadamard matrix) for pure rho and psi: within the weight-aware
     # bound, which for this fit (worst residual on one-qubit supports) is below max|r|
     n = 10
     ens = ShallowEnsemble(n, 3, chain(n))
